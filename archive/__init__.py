@@ -1,0 +1,26 @@
+"""massarc.archive: the run archive on Zarr v3 (storage, reading, writing), the single
+pass over chunks, and the converters from and to other formats."""
+
+from .errors import ArchiveError, DataError, NotARunError
+from .layout import chunk_snapshots, codecs, mass_dtype
+from .reader import Block, ChunkRef, Run, open_run, open_runs
+from .store import open_store
+from .writer import RunWriter, create_run, resume_run
+
+__all__ = [
+    "ArchiveError",
+    "Block",
+    "ChunkRef",
+    "DataError",
+    "NotARunError",
+    "Run",
+    "RunWriter",
+    "chunk_snapshots",
+    "codecs",
+    "create_run",
+    "mass_dtype",
+    "open_run",
+    "open_runs",
+    "open_store",
+    "resume_run",
+]

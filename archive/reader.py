@@ -1,0 +1,275 @@
+"""Open runs lazily: metadata, shapes, and chunk-by-chunk access to the masses.
+
+>>> run = open_run("samples/transit-ring.zarr")            # doctest: +SKIP
+>>> run.meta.model.family, run.n_replicas, run.n_snapshots  # doctest: +SKIP
+('zrp', 4, 400)
+>>> for block in run.blocks():                               # doctest: +SKIP
+...     block.replica, block.start, block.stop, block.mass.shape
+
+Only the committed extent (the commit marker in the header) is visible: a run whose writer
+was killed reads as the consistent prefix it had committed.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+
+import numpy as np
+import zarr
+
+from massarc.schema import ArchiveHeader, MetadataError, RunMeta, WriteState, parse_header
+from massarc.schema.format import (
+    ATTRIBUTE_KEY,
+    COLLECTION_FORMAT,
+    EVENTS,
+    MASS,
+    RUN_FORMAT,
+    TIME,
+)
+
+from .errors import ArchiveError, NotARunError
+from .store import Location, describe, open_store
+
+__all__ = ["Block", "ChunkRef", "Run", "open_run", "open_runs"]
+
+
+@dataclass(frozen=True)
+class ChunkRef:
+    """One chunk of ``mass``: replica, snapshot range [start, stop) and its store key."""
+
+    replica: int
+    start: int
+    stop: int
+    key: str
+
+
+@dataclass(frozen=True)
+class Block:
+    """The decoded masses of one chunk: ``mass`` is ``(stop - start, *lattice)``."""
+
+    replica: int
+    start: int
+    stop: int
+    mass: np.ndarray
+    key: str = ""
+
+
+@dataclass
+class Run:
+    """A run archive opened for reading. Build it with :func:`open_run`.
+
+    ``meta`` is None only when opened leniently and the header is invalid; then
+    ``problems`` says why.
+    """
+
+    group: zarr.Group
+    name: str
+    header: ArchiveHeader | None
+    problems: list[str] = field(default_factory=list)
+
+    # -- what the run is ---------------------------------------------------------------
+
+    @property
+    def meta(self) -> RunMeta | None:
+        return self.header.metadata if self.header else None
+
+    @property
+    def state(self) -> WriteState:
+        if self.header is not None:
+            return self.header.state
+        m = self.group.get(MASS)
+        shape = m.shape if isinstance(m, zarr.Array) else (0, 0)
+        return WriteState(snapshots=int(shape[1]), replicas=int(shape[0]), complete=False)
+
+    @property
+    def complete(self) -> bool:
+        return self.state.complete
+
+    @property
+    def mass(self) -> zarr.Array:
+        """The raw Zarr array (its shape may exceed the committed extent after a crash)."""
+        arr = self.group.get(MASS)
+        if not isinstance(arr, zarr.Array):
+            raise ArchiveError(f"{self.name}: no '{MASS}' array")
+        return arr
+
+    @property
+    def has_data(self) -> bool:
+        return isinstance(self.group.get(MASS), zarr.Array) and self.n_snapshots > 0
+
+    @property
+    def n_replicas(self) -> int:
+        return min(self.state.replicas, self._raw_shape()[0])
+
+    @property
+    def n_snapshots(self) -> int:
+        return min(self.state.snapshots, self._raw_shape()[1])
+
+    @property
+    def lattice_shape(self) -> tuple[int, ...]:
+        arr = self.group.get(MASS)
+        if isinstance(arr, zarr.Array):
+            return tuple(int(x) for x in arr.shape[2:])
+        return tuple(self.meta.lattice.sites) if self.meta else ()
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        """Committed shape ``(replicas, snapshots, *lattice)``."""
+        return (self.n_replicas, self.n_snapshots, *self.lattice_shape)
+
+    @property
+    def dtype(self) -> np.dtype:
+        return np.dtype(self.mass.dtype)
+
+    @property
+    def chunk_snapshots(self) -> int:
+        return int(self.mass.chunks[1])
+
+    @property
+    def times(self) -> np.ndarray:
+        """The committed snapshot times (float64)."""
+        arr = self.group.get(TIME)
+        if not isinstance(arr, zarr.Array):
+            return np.empty(0)
+        return np.asarray(arr[: self.n_snapshots], dtype=np.float64)
+
+    @property
+    def nbytes(self) -> int:
+        """Uncompressed size of the committed masses."""
+        return math.prod(self.shape) * self.dtype.itemsize if self.has_data else 0
+
+    def stored_bytes(self) -> int:
+        """Bytes the ``mass`` chunks occupy in the store (compressed)."""
+        return int(self.mass.nbytes_stored()) if MASS in self.group else 0
+
+    def series(self, name: str) -> np.ndarray | None:
+        """An optional ``(replica, time)`` array such as ``inflow``, cut to the committed extent."""
+        arr = self.group.get(name)
+        if not isinstance(arr, zarr.Array):
+            return None
+        return np.asarray(arr[: self.n_replicas, : self.n_snapshots])
+
+    @property
+    def events(self) -> zarr.Group | None:
+        """The optional event-log subgroup."""
+        g = self.group.get(EVENTS)
+        return g if isinstance(g, zarr.Group) else None
+
+    # -- reading -------------------------------------------------------------------------
+
+    def chunk_refs(self) -> list[ChunkRef]:
+        """Every chunk of the committed extent, replica-major then time, without reading."""
+        if not self.has_data:
+            return []
+        tc = self.chunk_snapshots
+        tail = "/".join("0" for _ in self.lattice_shape)
+        refs = []
+        for r in range(self.n_replicas):
+            for k, start in enumerate(range(0, self.n_snapshots, tc)):
+                stop = min(start + tc, self.n_snapshots)
+                refs.append(ChunkRef(r, start, stop, f"{MASS}/c/{r}/{k}/{tail}"))
+        return refs
+
+    def read_chunk(self, ref: ChunkRef) -> Block:
+        """Decode one chunk (raises if it is corrupt: the checksum does not match)."""
+        data = np.asarray(self.mass[ref.replica, ref.start : ref.stop])
+        return Block(ref.replica, ref.start, ref.stop, data, ref.key)
+
+    def blocks(self) -> Iterator[Block]:
+        """Decoded chunks one at a time, replica-major then time (memory: one chunk)."""
+        for ref in self.chunk_refs():
+            yield self.read_chunk(ref)
+
+    def read(self, replica: int, start: int = 0, stop: int | None = None) -> np.ndarray:
+        """Masses of one replica for snapshots [start, stop), as ``(time, *lattice)``."""
+        stop = self.n_snapshots if stop is None else min(stop, self.n_snapshots)
+        if not 0 <= replica < self.n_replicas:
+            raise IndexError(f"expected a replica in 0..{self.n_replicas - 1}, got {replica}")
+        return np.asarray(self.mass[replica, start:stop])
+
+    def _raw_shape(self) -> tuple[int, ...]:
+        arr = self.group.get(MASS)
+        return tuple(arr.shape) if isinstance(arr, zarr.Array) else (0, 0)
+
+    def __repr__(self) -> str:
+        fam = self.meta.model.family if self.meta else "?"
+        return f"<Run {self.name!r} {fam} shape={self.shape}>"
+
+
+def _is_run(group: zarr.Group) -> bool:
+    raw = group.attrs.get(ATTRIBUTE_KEY)
+    return isinstance(raw, dict) and raw.get("format") == RUN_FORMAT
+
+
+def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
+    raw = group.attrs.get(ATTRIBUTE_KEY)
+    if raw is None:
+        raise NotARunError(f"{name}: not a massarc run (no '{ATTRIBUTE_KEY}' group attribute)")
+    try:
+        header = parse_header(raw, name)
+    except MetadataError as exc:
+        if not lenient:
+            raise
+        return Run(group, name, None, problems=list(exc.problems))
+    return Run(group, name, header)
+
+
+def _open_group(location: Location) -> zarr.Group:
+    name = describe(location)
+    store = open_store(location, "r")
+    try:
+        return zarr.open_group(store, mode="r", zarr_format=3, use_consolidated=False)
+    except (FileNotFoundError, zarr.errors.GroupNotFoundError, KeyError):
+        raise NotARunError(f"{name}: not a Zarr v3 group") from None
+
+
+def open_run(location: Location, *, lenient: bool = False) -> Run:
+    """Open one run for reading.
+
+    Raises :class:`NotARunError` when the location is not a run and
+    :class:`~massarc.schema.MetadataError` when its header is invalid, unless ``lenient``
+    (then ``run.problems`` lists what is wrong and ``run.meta`` is None).
+    """
+    return _from_group(_open_group(location), describe(location), lenient)
+
+
+def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
+    """Open a run, or every run of a collection (a Zarr group of runs, or a directory of
+    run archives), in name order."""
+    name = describe(location)
+    from .store import local_path
+
+    path = local_path(location)
+    if path is not None and path.is_dir() and not (path / "zarr.json").exists():
+        found = sorted(p for p in path.rglob("zarr.json"))
+        runs = []
+        seen: list[str] = []
+        for meta_file in found:
+            d = meta_file.parent
+            if any(str(d).startswith(s + "/") for s in seen):
+                continue
+            try:
+                grp = _open_group(d)
+            except NotARunError:
+                continue
+            if _is_run(grp):
+                seen.append(str(d))
+                runs.append(_from_group(grp, str(d), lenient))
+        if not runs:
+            raise NotARunError(f"{name}: directory holds no massarc run")
+        return runs
+    group = _open_group(location)
+    if _is_run(group):
+        return [_from_group(group, name, lenient)]
+    raw = group.attrs.get(ATTRIBUTE_KEY)
+    is_collection = isinstance(raw, dict) and raw.get("format") == COLLECTION_FORMAT
+    runs = []
+    for key, child in sorted(group.groups()):
+        if _is_run(child):
+            runs.append(_from_group(child, f"{name}/{key}", lenient))
+    if not runs:
+        kind = "collection" if is_collection else "group"
+        raise NotARunError(f"{name}: this {kind} holds no massarc run")
+    return runs

@@ -1,0 +1,84 @@
+"""Turn a location (path, ``file://``, ``memory://``, zip) into a Zarr store.
+
+* local paths and ``file://`` URLs: :class:`zarr.storage.LocalStore`, whose writes go to a
+  ``*.partial`` file that is then renamed, so a chunk or a metadata file is never seen
+  half-written;
+* ``memory://name``: fsspec's process-wide memory file system (handy in tests);
+* ``*.zip``: :class:`zarr.storage.ZipStore`, read-only (a zip cannot be appended to safely).
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+from urllib.parse import unquote, urlparse
+
+import zarr
+from zarr.abc.store import Store
+from zarr.storage import FsspecStore, LocalStore, ZipStore
+
+from .errors import ArchiveError
+
+__all__ = ["Location", "describe", "local_path", "open_store"]
+
+Location = str | os.PathLike[str] | Store
+
+
+def local_path(location: Location) -> Path | None:
+    """The local directory or file behind a location, or None for memory and other URLs."""
+    if isinstance(location, LocalStore):
+        return Path(location.root)
+    if isinstance(location, Store):
+        return None
+    text = os.fspath(location)
+    if text.startswith("file://"):
+        return Path(unquote(urlparse(text).path))
+    if "://" in text:
+        return None
+    return Path(text)
+
+
+def describe(location: Location) -> str:
+    """A short human name for a location, used in messages."""
+    if isinstance(location, Store):
+        return str(location)
+    return os.fspath(location)
+
+
+def open_store(location: Location, mode: str = "r") -> Store:
+    """Open ``location`` as a Zarr store; ``mode`` is ``"r"`` (read) or ``"w"``/``"a"``.
+
+    >>> store = open_store("memory://doc-example", mode="w")
+    >>> store.read_only
+    False
+    """
+    if isinstance(location, Store):
+        return location
+    read_only = mode == "r"
+    text = os.fspath(location)
+    path = local_path(text)
+    if path is not None and path.suffix.lower() == ".zip":
+        if not read_only:
+            raise ArchiveError(
+                f"{text}: zip archives are read-only (a zip cannot be appended to safely); "
+                "write a directory archive and zip it when done"
+            )
+        if not path.is_file():
+            raise ArchiveError(f"{text}: no such zip file")
+        return ZipStore(path, mode="r")
+    if path is not None:
+        if read_only and not path.exists():
+            raise ArchiveError(f"{text}: no such file or directory")
+        return LocalStore(path, read_only=read_only)
+    if text.startswith("memory://"):
+        return FsspecStore.from_url(text, read_only=read_only)
+    try:
+        return FsspecStore.from_url(text, read_only=read_only)
+    except Exception as exc:  # fsspec raises many kinds for unknown protocols
+        raise ArchiveError(f"{text}: cannot open this URL ({exc})") from None
+
+
+def open_group(location: Location, mode: str = "r") -> zarr.Group:
+    """Open the Zarr group at ``location`` (no consolidated metadata: it is not in Zarr v3)."""
+    store = open_store(location, mode)
+    return zarr.open_group(store, mode=mode, zarr_format=3)

@@ -1,0 +1,39 @@
+"""massarc: archive, audit and convert trajectories of lattice mass-transport models.
+
+The public API is small:
+
+* :func:`open_run`, :func:`open_runs` read a run (or a collection) lazily;
+* :func:`create_run`, :func:`resume_run` write one, snapshot by snapshot;
+* :func:`load_metadata`, :func:`parse_metadata` and :class:`RunMeta` describe it.
+"""
+
+from massarc._version import __version__
+from massarc.archive import (
+    ArchiveError,
+    DataError,
+    NotARunError,
+    Run,
+    RunWriter,
+    create_run,
+    open_run,
+    open_runs,
+    resume_run,
+)
+from massarc.schema import MetadataError, RunMeta, load_metadata, parse_metadata
+
+__all__ = [
+    "ArchiveError",
+    "DataError",
+    "MetadataError",
+    "NotARunError",
+    "Run",
+    "RunMeta",
+    "RunWriter",
+    "__version__",
+    "create_run",
+    "load_metadata",
+    "open_run",
+    "open_runs",
+    "parse_metadata",
+    "resume_run",
+]

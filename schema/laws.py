@@ -1,0 +1,212 @@
+"""What a declared model implies: hop rates, stationary weights, exact finite-size laws.
+
+This module holds the physics that several layers need (the exact sampler in
+``massarc.simulate``, the ``stationary-law`` and ``steady-state`` checks), so it lives on
+the ground floor next to the metadata models.
+
+Facts used (see the tests for the checks against outside sources):
+
+* ZRP on a ring (or a symmetric chain with walls) has a product stationary measure with
+  single-site weight f(m) = prod_{k=1..m} 1/u(k); at fixed total mass M on N sites the law
+  is canonical, P(m_1 = m) = f(m) Z(N-1, M-m) / Z(N, M) with
+  Z(N, M) = sum_m f(m) Z(N-1, M-m) (Evans and Hanney, J. Phys. A 38, R195, 2005).
+* For u(k) = 1 + b/k and b > 2 a condensate forms above rho_c = 1/(b-2) (same reference).
+* CMAM condenses above rho_c = sqrt(w/D + 1) - 1 (Majumdar, Krishnamurthy and Barma,
+  PRL 81, 3691, 1998; Rajesh and Majumdar for the exactness in every dimension).
+* Relaxation from a random start takes t ~ L^z, z = 3 for symmetric ZRP, 2 for
+  asymmetric ZRP and for CMAM (coarsening l(t) ~ t^(1/z); Godreche, J. Phys. A 36, 6313,
+  2003; Grosskinsky, Schuetz and Spohn, J. Stat. Phys. 113, 389, 2003).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy.signal import fftconvolve
+
+from .models import CMAMModel, RunMeta, ZRPModel
+
+__all__ = [
+    "canonical_site_law",
+    "convolution_power",
+    "critical_density",
+    "dynamic_exponent",
+    "hop_rates",
+    "max_hop_rate",
+    "relaxation_time",
+    "site_weights",
+    "tilt_to_density",
+]
+
+# Above this many masses np.convolve (exact, O(M^2)) gives way to FFT convolution.
+_DIRECT_CONVOLVE_MAX = 4096
+
+
+def hop_rates(model: ZRPModel, kmax: int) -> np.ndarray:
+    """u(0..kmax) as float64, with u(0) = 0.
+
+    >>> hop_rates(ZRPModel(family="zrp", b=2.0), 3).tolist()
+    [0.0, 3.0, 2.0, 1.6666666666666665]
+    """
+    k = np.arange(kmax + 1, dtype=np.float64)
+    if model.b is not None:
+        with np.errstate(divide="ignore"):
+            u = 1.0 + model.b / k
+    elif model.rate is not None:
+        u = np.full(kmax + 1, model.rate)
+    else:
+        table = np.asarray(model.rates, dtype=np.float64)
+        idx = np.minimum(np.arange(kmax + 1), len(table)) - 1
+        u = table[np.maximum(idx, 0)]
+    u[0] = 0.0
+    return u
+
+
+def max_hop_rate(model: ZRPModel) -> float:
+    """sup_k u(k): the rate bound used by the rejection (thinning) sampler."""
+    if model.b is not None:
+        return 1.0 + max(model.b, 0.0)
+    if model.rate is not None:
+        return float(model.rate)
+    return float(max(model.rates or [1.0]))
+
+
+def site_weights(model: ZRPModel, mmax: int) -> np.ndarray:
+    """Single-site stationary weights f(0..mmax), normalised to sum to 1.
+
+    f(m) = prod_{k<=m} 1/u(k), computed in log space. Normalising by the sum keeps the
+    partition functions probabilities (they never overflow); the canonical law does not
+    depend on the normalisation.
+    """
+    u = hop_rates(model, mmax)
+    logf = -np.concatenate([[0.0], np.cumsum(np.log(u[1:]))])
+    w = np.exp(logf - logf.max())
+    return w / w.sum()
+
+
+def tilt_to_density(p: np.ndarray, density: float) -> np.ndarray:
+    """Multiply p(m) by z^m (then normalise) so that the mean equals ``density``.
+
+    The canonical law is unchanged by such a tilt, but the convolution powers then peak
+    near the total mass instead of underflowing far in their tails.
+    """
+    m = np.arange(len(p), dtype=np.float64)
+    with np.errstate(divide="ignore"):
+        logp = np.log(p)
+
+    def tilted(logz: float) -> np.ndarray:
+        a = logp + logz * m
+        a = np.exp(a - a.max())
+        return a / a.sum()
+
+    target = min(max(density, 0.0), len(p) - 1.0)
+    lo, hi = -60.0, 60.0
+    for _ in range(200):
+        mid = 0.5 * (lo + hi)
+        if float(tilted(mid) @ m) < target:
+            lo = mid
+        else:
+            hi = mid
+        if hi - lo < 1e-12:
+            break
+    return tilted(0.5 * (lo + hi))
+
+
+def _convolve(a: np.ndarray, b: np.ndarray, n: int) -> np.ndarray:
+    if n <= _DIRECT_CONVOLVE_MAX:
+        out = np.convolve(a, b)[:n]
+    else:
+        out = np.clip(fftconvolve(a, b)[:n], 0.0, None)
+    top = out.max()
+    return out / top if top > 0 else out
+
+
+def convolution_power(p: np.ndarray, n: int, mmax: int) -> np.ndarray:
+    """p^{*n}(0..mmax) up to a constant factor, by binary powering (O(M^2 log n)).
+
+    This is Z(n, M') for M' = 0..mmax when p holds single-site weights.
+    """
+    size = mmax + 1
+    result = np.zeros(size)
+    result[0] = 1.0
+    base = np.asarray(p[:size], dtype=np.float64)
+    while n > 0:
+        if n & 1:
+            result = _convolve(result, base, size)
+        n >>= 1
+        if n:
+            base = _convolve(base, base, size)
+    return result
+
+
+def canonical_site_law(model: ZRPModel, sites: int, mass: int) -> np.ndarray:
+    """Exact single-site law P(m), m = 0..mass, of the canonical ZRP steady state.
+
+    P(m) = f(m) Z(sites-1, mass-m) / Z(sites, mass): the product measure conditioned on
+    the total mass, for a ring (any drift) or a symmetric chain with walls.
+
+    >>> law = canonical_site_law(ZRPModel(family="zrp", rate=1.0), sites=2, mass=2)
+    >>> [round(x, 6) for x in law]   # f = 1: (0,2), (1,1), (2,0) equally likely
+    [0.333333, 0.333333, 0.333333]
+    """
+    if sites < 1 or mass < 0:
+        raise ValueError(f"expected sites >= 1 and mass >= 0, got sites={sites}, mass={mass}")
+    p = tilt_to_density(site_weights(model, mass), mass / sites)
+    if sites == 1:
+        law = np.zeros(mass + 1)
+        law[mass] = 1.0
+        return law
+    rest = convolution_power(p, sites - 1, mass)
+    law = p * rest[::-1]
+    return law / law.sum()
+
+
+def critical_density(meta_model: ZRPModel | CMAMModel | object) -> float | None:
+    """rho_c above which a condensate forms, or None when the model does not condense.
+
+    >>> critical_density(ZRPModel(family="zrp", b=4.0))
+    0.5
+    >>> round(critical_density(CMAMModel(family="cmam", diffusion=1.0, chipping=3.0)), 6)
+    1.0
+    """
+    if isinstance(meta_model, ZRPModel):
+        if meta_model.b is not None and meta_model.b > 2:
+            return 1.0 / (meta_model.b - 2.0)
+        return None
+    if isinstance(meta_model, CMAMModel):
+        return math.sqrt(meta_model.chipping / meta_model.diffusion + 1.0) - 1.0
+    return None
+
+
+def dynamic_exponent(meta_model: ZRPModel | CMAMModel | object) -> float | None:
+    """z in l(t) ~ t^(1/z): 3 for symmetric ZRP, 2 for asymmetric ZRP and for CMAM."""
+    if isinstance(meta_model, ZRPModel):
+        return 3.0 if meta_model.drift == "symmetric" else 2.0
+    if isinstance(meta_model, CMAMModel):
+        return 2.0
+    return None
+
+
+def relaxation_time(meta: RunMeta) -> float | None:
+    """About L^z / (rate scale): the time a random start needs to reach the steady state.
+
+    L is the largest linear extent of the lattice; the rate scale is u(infinity) for the ZRP
+    and D for the CMAM. Returns None for custom models.
+    """
+    z = dynamic_exponent(meta.model)
+    if z is None:
+        return None
+    length = max(meta.lattice.sites)
+    model = meta.model
+    if isinstance(model, ZRPModel):
+        if model.b is not None:
+            scale = 1.0
+        elif model.rate is not None:
+            scale = model.rate
+        else:
+            scale = (model.rates or [1.0])[-1]
+    else:
+        assert isinstance(model, CMAMModel)
+        scale = model.diffusion
+    return float(length) ** z / scale

@@ -1,0 +1,93 @@
+"""Read metadata from TOML or JSON, apply ``key.path=value`` overrides, validate.
+
+>>> meta = parse_metadata({"model": {"family": "cmam", "diffusion": 1.0, "chipping": 2.0},
+...                        "lattice": {"sites": [64], "boundary": "periodic"},
+...                        "run": {"regime": "transient"}})
+>>> meta.lattice.boundary
+['periodic']
+"""
+
+from __future__ import annotations
+
+import json
+import tomllib
+from collections.abc import Iterable, Mapping
+from pathlib import Path
+from typing import Any
+
+from pydantic import ValidationError
+
+from .errors import MetadataError, describe_validation_error
+from .models import RunMeta
+
+__all__ = ["apply_overrides", "load_metadata", "parse_metadata", "read_metadata_file"]
+
+
+def read_metadata_file(path: str | Path) -> dict[str, Any]:
+    """Parse a ``.toml`` or ``.json`` file into a plain dict (no validation).
+
+    Raises :class:`MetadataError` naming the file (and line, for syntax errors).
+    """
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise MetadataError([f"cannot read metadata file ({exc.strerror})"], str(p)) from None
+    if p.suffix.lower() == ".json" or (p.suffix.lower() != ".toml" and text.lstrip()[:1] == "{"):
+        try:
+            data = json.loads(text)
+        except json.JSONDecodeError as exc:
+            raise MetadataError([f"line {exc.lineno}: invalid JSON ({exc.msg})"], str(p)) from None
+    else:
+        try:
+            data = tomllib.loads(text)
+        except tomllib.TOMLDecodeError as exc:
+            raise MetadataError([f"invalid TOML ({exc})"], str(p)) from None
+    if not isinstance(data, dict):
+        raise MetadataError(
+            [f"expected a table at the top level; got {type(data).__name__}"], str(p)
+        )
+    return data
+
+
+def _parse_value(text: str) -> Any:
+    """A ``--set`` value: a TOML literal (number, bool, string, list), else the raw string."""
+    try:
+        return tomllib.loads(f"v = {text}")["v"]
+    except tomllib.TOMLDecodeError:
+        return text
+
+
+def apply_overrides(data: Mapping[str, Any], overrides: Iterable[str]) -> dict[str, Any]:
+    """Return a copy of ``data`` with each ``key.path=value`` applied.
+
+    >>> apply_overrides({"run": {"regime": "stationary"}}, ["run.regime=transient"])
+    {'run': {'regime': 'transient'}}
+    """
+    out: dict[str, Any] = json.loads(json.dumps(data, default=str))
+    for item in overrides:
+        key, sep, raw = item.partition("=")
+        if not sep or not key.strip():
+            raise MetadataError([f"--set {item!r}: expected key.path=value"])
+        parts = key.strip().split(".")
+        node = out
+        for part in parts[:-1]:
+            nxt = node.setdefault(part, {})
+            if not isinstance(nxt, dict):
+                raise MetadataError([f"--set {item!r}: {part} is not a table"])
+            node = nxt
+        node[parts[-1]] = _parse_value(raw.strip())
+    return out
+
+
+def parse_metadata(data: Mapping[str, Any], source: str | None = None) -> RunMeta:
+    """Validate a plain dict into :class:`RunMeta`; raise :class:`MetadataError` otherwise."""
+    try:
+        return RunMeta.model_validate(dict(data))
+    except ValidationError as exc:
+        raise MetadataError(describe_validation_error(exc), source) from None
+
+
+def load_metadata(path: str | Path, overrides: Iterable[str] = ()) -> RunMeta:
+    """Read, override and validate a metadata file in one step."""
+    return parse_metadata(apply_overrides(read_metadata_file(path), overrides), str(path))
