@@ -66,6 +66,8 @@ class Statistic(ABC):
 
     def pair(self, replica: int, index: int, before: np.ndarray, after: np.ndarray) -> None:
         """The pair of snapshots (index - 1, index) that straddles two chunks."""
+        if self.pairs:
+            raise NotImplementedError(f"{type(self).__name__} sets pairs = True: define pair()")
 
     @abstractmethod
     def finish(self, faults: list[ChunkFault]) -> Any:
