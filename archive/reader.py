@@ -12,9 +12,12 @@ was killed reads as the consistent prefix it had committed.
 
 from __future__ import annotations
 
+import json
 import math
+import os
 from collections.abc import Iterator
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import zarr
@@ -30,7 +33,7 @@ from massarc.schema.format import (
 )
 
 from .errors import ArchiveError, NotARunError
-from .store import Location, describe, open_store
+from .store import Location, describe, local_path, open_store
 
 __all__ = ["Block", "ChunkRef", "Run", "open_run", "open_runs"]
 
@@ -203,10 +206,33 @@ def _is_run(group: zarr.Group) -> bool:
     return isinstance(raw, dict) and raw.get("format") == RUN_FORMAT
 
 
+def _run_dirs(root: Path) -> list[Path]:
+    """Directories below ``root`` whose ``zarr.json`` is a massarc run, in name order.
+    The walk does not descend into Zarr nodes (a run's arrays, or runs inside runs)."""
+    found = []
+    for here, dirs, _files in os.walk(root):
+        dirs.sort()
+        node = Path(here) / "zarr.json"
+        if node.is_file() and Path(here) != root:
+            dirs.clear()
+            try:
+                doc = json.loads(node.read_text(encoding="utf-8"))
+            except (OSError, ValueError):
+                continue
+            attrs = doc.get("attributes") or {}
+            raw = attrs.get(ATTRIBUTE_KEY) if isinstance(attrs, dict) else None
+            is_group = doc.get("node_type") == "group"
+            if is_group and isinstance(raw, dict) and raw.get("format") == RUN_FORMAT:
+                found.append(Path(here))
+    return found
+
+
 def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
     raw = group.attrs.get(ATTRIBUTE_KEY)
     if raw is None:
         raise NotARunError(f"{name}: not a massarc run (no '{ATTRIBUTE_KEY}' group attribute)")
+    if isinstance(raw, dict) and raw.get("format") == COLLECTION_FORMAT:
+        raise NotARunError(f"{name}: a collection of runs, not a single run")
     try:
         header = parse_header(raw, name)
     except MetadataError as exc:
@@ -239,24 +265,9 @@ def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
     """Open a run, or every run of a collection (a Zarr group of runs, or a directory of
     run archives), in name order."""
     name = describe(location)
-    from .store import local_path
-
     path = local_path(location)
     if path is not None and path.is_dir() and not (path / "zarr.json").exists():
-        found = sorted(p for p in path.rglob("zarr.json"))
-        runs = []
-        seen: list[str] = []
-        for meta_file in found:
-            d = meta_file.parent
-            if any(str(d).startswith(s + "/") for s in seen):
-                continue
-            try:
-                grp = _open_group(d)
-            except NotARunError:
-                continue
-            if _is_run(grp):
-                seen.append(str(d))
-                runs.append(_from_group(grp, str(d), lenient))
+        runs = [_from_group(_open_group(d), str(d), lenient) for d in _run_dirs(path)]
         if not runs:
             raise NotARunError(f"{name}: directory holds no massarc run")
         return runs

@@ -2,6 +2,78 @@
 
 from __future__ import annotations
 
+import json
+from typing import Any
+
 import click
 
-command = click.Command("info", help="placeholder")
+from massarc.archive import open_runs
+from massarc.archive.describe import run_facts
+
+from ._common import bad_input
+
+
+def _size(n: float) -> str:
+    for unit in ("B", "KiB", "MiB", "GiB"):
+        if n < 1024 or unit == "GiB":
+            return f"{n:.0f} {unit}" if unit == "B" else f"{n:.1f} {unit}"
+        n /= 1024
+    return f"{n:.1f} TiB"  # pragma: no cover
+
+
+def _lines(f: dict[str, Any]) -> list[str]:
+    if "problems" in f:
+        return [f"{f['path']}", "  metadata invalid: " + "; ".join(f["problems"])]
+    sites = " x ".join(str(s) for s in f["lattice"])
+    bounds = ", ".join(f["boundary"])
+    out = [
+        f"{f['path']}",
+        f"  model      {f['model']}",
+        f"  lattice    {sites} sites, boundary {bounds}",
+        f"  regime     {f['regime']} (claimed)"
+        + (f", started {f['initial']}" if f.get("initial") else ""),
+    ]
+    if f.get("total_mass") is not None:
+        out.append(f"  mass       {f['total_mass']} per replica, density {f['density']:.6g}")
+    shape = f"{f['replicas']} replicas x {f['snapshots']} snapshots"
+    out.append(
+        f"  data       {shape}" + ("" if f["complete"] else " (INCOMPLETE: writer did not finish)")
+    )
+    if "time_first" in f:
+        units = f["time_units"] or ""
+        out.append(f"  time       {f['time_first']:g} .. {f['time_last']:g} {units}".rstrip())
+        ratio = f"{f['compression']:.1f}x" if f["compression"] else "n/a"
+        vs32 = f"{f['compression_vs_int32']:.1f}x" if f["compression_vs_int32"] else "n/a"
+        out.append(
+            f"  storage    {f['dtype']}, {_size(f['bytes'])} raw, {_size(f['stored_bytes'])} "
+            f"stored ({ratio}; {vs32} against int32), chunks {f['chunk']}"
+        )
+    if f.get("events"):
+        out.append(f"  events     {f['events']} archived moves")
+    if f.get("simulator"):
+        out.append(
+            f"  written by {f['simulator']}" + (f" on {f['created']}" if f.get("created") else "")
+        )
+    return out
+
+
+@click.command("info")
+@click.argument("locations", nargs=-1, required=True)
+@click.option(
+    "--format",
+    "fmt",
+    type=click.Choice(["text", "json"]),
+    default="text",
+    show_default=True,
+    help="Human-readable lines or one JSON document.",
+)
+def command(locations: tuple[str, ...], fmt: str) -> None:
+    """Describe runs (or every run of a collection): model, lattice, data, storage."""
+    facts = []
+    with bad_input("info"):
+        for loc in locations:
+            facts.extend(run_facts(run) for run in open_runs(loc, lenient=True))
+    if fmt == "json":
+        click.echo(json.dumps({"runs": facts}, indent=2))
+        return
+    click.echo("\n\n".join("\n".join(_lines(f)) for f in facts))
