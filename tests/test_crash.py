@@ -22,26 +22,24 @@ import sys, numpy as np
 from massarc.archive import create_run
 from massarc.schema import parse_metadata
 path, mode = sys.argv[1], sys.argv[2]
+R, T, L, M, STEP = (int(x) for x in sys.argv[3:8])
 meta = parse_metadata({"model": {"family": "cmam", "diffusion": 1.0, "chipping": 0.5},
-                       "lattice": {"sites": [%(L)d], "boundary": "reflecting"},
+                       "lattice": {"sites": [L], "boundary": "reflecting"},
                        "run": {"regime": "transient"}})
 rng = np.random.default_rng(7)
-data = rng.multinomial(%(M)d, np.full(%(L)d, 1 / %(L)d), size=(%(R)d, %(T)d))
-times = np.arange(%(T)d) * 0.25
+data = rng.multinomial(M, np.full(L, 1 / L), size=(R, T))
+times = np.arange(T) * 0.25
 w = create_run(path, meta, snapshots_hint=20)
 print("started", flush=True)
-while True:  # keep writing until killed: rewrite the same run into fresh archives
-    if mode == "lockstep":
-        for s in range(0, %(T)d, %(STEP)d):
-            w.append(times[s:s + %(STEP)d], data[:, s:s + %(STEP)d]); w.flush()
-    else:
-        for r in range(%(R)d):
-            for s in range(0, %(T)d, %(STEP)d):
-                w.append(times[s:s + %(STEP)d], data[r, s:s + %(STEP)d], replica=r); w.flush()
-    w.close()
-    print("finished", flush=True)
-    break
-""" % {"L": L, "M": M, "R": R, "T": T, "STEP": STEP}
+if mode == "lockstep":  # many small commits, so that kills land mid-write
+    for s in range(0, T, STEP):
+        w.append(times[s:s + STEP], data[:, s:s + STEP]); w.flush()
+else:
+    for r in range(R):
+        for s in range(0, T, STEP):
+            w.append(times[s:s + STEP], data[r, s:s + STEP], replica=r); w.flush()
+w.close()
+"""
 
 
 def expected() -> tuple[np.ndarray, np.ndarray]:
@@ -80,7 +78,7 @@ def test_sigkill_at_random_moments_leaves_a_consistent_prefix(tmp_path: Path, mo
     for trial in range(10):  # 10 kills per mode: 20 in all
         path = tmp_path / f"{mode}-{trial}.zarr"
         child = subprocess.Popen(
-            [sys.executable, "-c", CHILD, str(path), mode],
+            [sys.executable, "-c", CHILD, str(path), mode, *(str(x) for x in (R, T, L, M, STEP))],
             stdout=subprocess.PIPE,
             text=True,
             env=env,
