@@ -1,0 +1,154 @@
+"""The event loop: many attempted moves on one replica, with pre-drawn random numbers.
+
+One Python function, :func:`event_loop_py`, is the whole algorithm. With numba installed
+it is compiled as it stands (``njit(cache=True, nogil=True)``); without numba, or with the
+environment variable ``MASSARC_PURE=1``, the very same function runs in the interpreter.
+Both consume the same arrays of uniforms and do the same IEEE arithmetic, so the compiled
+and pure paths give bit-identical trajectories.
+
+Each attempt ``i`` uses one site index ``sites[i]`` (uniform over the lattice) and one
+uniform ``unif[i]`` in [0, 1). With ``x = unif[i] * rate_max``:
+
+* ZRP (``family == 0``): the move happens when ``x < u(m)``; then ``v = x / u(m)`` is again
+  uniform in [0, 1) and chooses the direction;
+* CMAM (``family == 1``): ``x < D`` moves the whole mass (``v = x / D``), otherwise one unit
+  chips off (``v = (x - D) / w``).
+
+In 1D the move goes to the +1 neighbour when ``v < p_right``; in 2D ``2 v`` picks the axis
+(its integer part) and the direction (its fraction against ``p_right``). A move towards a
+reflecting wall has neighbour -1 in the table and is suppressed: the mass stays.
+"""
+
+from __future__ import annotations
+
+import functools
+import importlib.util
+import os
+from collections.abc import Callable
+
+import numpy as np
+
+__all__ = [
+    "CMAM",
+    "HAVE_NUMBA",
+    "ZRP",
+    "event_loop",
+    "event_loop_py",
+    "neighbour_table",
+    "use_pure",
+]
+
+ZRP = 0
+CMAM = 1
+
+#: True when numba can be imported (it is only imported when a kernel is first needed).
+HAVE_NUMBA = importlib.util.find_spec("numba") is not None
+
+
+def event_loop_py(
+    mass: np.ndarray,
+    out: np.ndarray,
+    nbr: np.ndarray,
+    ndim: int,
+    p_right: float,
+    family: int,
+    rates: np.ndarray,
+    rate_max: float,
+    diffusion: float,
+    chipping: float,
+    sites: np.ndarray,
+    unif: np.ndarray,
+    stops: np.ndarray,
+) -> None:
+    """Perform ``len(sites)`` attempts on ``mass`` (flat, int64), in place.
+
+    ``stops`` (sorted, values in 0..len(sites)) says when to record: ``out[j]`` receives a
+    copy of ``mass`` just before attempt ``stops[j]`` (after the last one when
+    ``stops[j] == len(sites)``). ``rates`` holds u(0..K) with u(k) = u(K) beyond K.
+    """
+    n = len(sites)
+    n_rec = len(stops)
+    top = len(rates) - 1
+    j = 0
+    for i in range(n):
+        while j < n_rec and stops[j] == i:
+            out[j, :] = mass
+            j += 1
+        s = sites[i]
+        m = mass[s]
+        if m == 0:
+            continue
+        x = unif[i] * rate_max
+        if family == 0:
+            r = rates[m] if m < top else rates[top]
+            if x >= r:
+                continue
+            v = x / r
+            amount = 1
+        elif x < diffusion:
+            v = x / diffusion
+            amount = m
+        else:
+            v = (x - diffusion) / chipping
+            amount = 1
+        if ndim == 1:
+            col = 1 if v < p_right else 0
+        else:
+            v2 = v * 2.0
+            axis = int(v2)
+            if axis > 1:
+                axis = 1  # v rounded up to 1.0: keep the index in range
+            col = 2 * axis + (1 if v2 - axis < p_right else 0)
+        t = nbr[s, col]
+        if t < 0:
+            continue
+        mass[s] = m - amount
+        mass[t] += amount
+    while j < n_rec:
+        out[j, :] = mass
+        j += 1
+
+
+@functools.cache
+def _compiled() -> Callable[..., None]:
+    import numba
+
+    return numba.njit(cache=True, nogil=True)(event_loop_py)
+
+
+def use_pure(pure: bool | None = None) -> bool:
+    """Whether the pure-Python loop runs: ``pure`` if given, else ``MASSARC_PURE=1`` or no
+    numba."""
+    if pure is not None:
+        if not pure and not HAVE_NUMBA:
+            raise ImportError("expected numba for the compiled event loop; got none installed")
+        return pure
+    return os.environ.get("MASSARC_PURE", "") == "1" or not HAVE_NUMBA
+
+
+def event_loop(pure: bool | None = None) -> Callable[..., None]:
+    """The event loop to call: compiled with numba, or :func:`event_loop_py` itself."""
+    return event_loop_py if use_pure(pure) else _compiled()
+
+
+def neighbour_table(sites: list[int], boundary: list[str]) -> np.ndarray:
+    """``nbr[s, 2 * axis + d]``: the flat index of the neighbour of site ``s`` one step along
+    ``axis`` (d = 0: -1, d = 1: +1), or -1 where a reflecting wall suppresses the move.
+
+    Sites are numbered in array order (2D: ``y * Lx + x``).
+
+    >>> neighbour_table([3], ["reflecting"]).tolist()
+    [[-1, 1], [0, 2], [1, -1]]
+    """
+    shape = tuple(sites)
+    index = np.arange(int(np.prod(shape)), dtype=np.int64).reshape(shape)
+    cols = []
+    for axis, (length, bound) in enumerate(zip(shape, boundary, strict=True)):
+        for step in (-1, 1):
+            moved = np.roll(index, -step, axis=axis)
+            if bound == "reflecting":
+                edge = [slice(None)] * len(shape)
+                edge[axis] = 0 if step == -1 else length - 1
+                moved[tuple(edge)] = -1
+            cols.append(moved.reshape(-1))
+    return np.ascontiguousarray(np.stack(cols, axis=1))
