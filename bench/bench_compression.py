@@ -91,7 +91,7 @@ def main() -> None:
                     "ratio_vs_stored_dtype": run.nbytes / stored,
                     "bits_per_value": 8 * stored / x.size,
                     "write_MB_s": run.nbytes / t_write / 1e6,
-                    "decode_MB_s": run.nbytes / t_read / 1e6,
+                    "decode_MB_s": decoded / t_read / 1e6,
                 }
             )
         # the same data through a plain int32 zarr array with the same codecs, for reference
