@@ -212,3 +212,16 @@ def test_bad_arguments_say_what_was_expected(change: dict, message: str) -> None
     args: dict[str, Any] = {"times": [0.0, 1.0], "replicas": 1, "seed": 0, "mass": 4, **change}
     with pytest.raises(SamplerError, match=message):
         simulate(_meta(ZRP, [4]), **args)
+
+
+def test_the_pure_path_can_be_forced(monkeypatch: pytest.MonkeyPatch) -> None:
+    from massarc.simulate import kernels
+
+    monkeypatch.setenv("MASSARC_PURE", "1")
+    assert kernels.use_pure() and kernels.event_loop() is kernels.event_loop_py
+    assert kernels.use_pure(True)
+    monkeypatch.delenv("MASSARC_PURE")
+    assert kernels.use_pure() is not kernels.HAVE_NUMBA
+    if not kernels.HAVE_NUMBA:
+        with pytest.raises(ImportError, match="expected numba"):
+            kernels.use_pure(False)
