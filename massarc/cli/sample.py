@@ -50,7 +50,9 @@ def _mass(meta: Any, mass: int | None, density: float | None) -> int | None:
 
 @click.command(_NAME, cls=_RecordingCommand)
 @click.argument("out")
-@click.option("--meta", "meta_path", required=True, help="Metadata file (TOML or JSON).")
+@click.option(
+    "--meta", "meta_path", metavar="META", required=True, help="Metadata file (TOML or JSON)."
+)
 @click.option(
     "--set",
     "overrides",
@@ -58,7 +60,13 @@ def _mass(meta: Any, mass: int | None, density: float | None) -> int | None:
     metavar="KEY.PATH=VALUE",
     help="Override a metadata entry (repeatable), e.g. --set model.b=4.0.",
 )
-@click.option("--replicas", type=click.IntRange(min=1), required=True, help="Independent replicas.")
+@click.option(
+    "--replicas",
+    metavar="R",
+    type=click.IntRange(min=1),
+    required=True,
+    help="Independent replicas.",
+)
 @click.option(
     "--seed", type=click.IntRange(min=0), required=True, help="Master seed of all replicas."
 )
@@ -113,7 +121,7 @@ def command(
     overwrite: bool,
     quiet: bool,
 ) -> None:
-    """Simulate REPLICAS replicas of the model in META and write the run to OUT.
+    """Simulate R replicas of the model in META and write the run to OUT.
 
     Continuous-time dynamics observed exactly at the snapshot times, or with --exact
     independent samples of the ZRP steady state. A move into a reflecting wall is
