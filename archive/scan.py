@@ -6,23 +6,37 @@ one decoded chunk, and, when it needs consecutive snapshot pairs, how to handle 
 that straddles two chunks; the engine carries the last snapshot of each chunk across the
 edge so that no chunk is read twice.
 
+Chunks are decoded and reduced in a pool of worker threads (zarr decodes with Blosc's own
+threads turned off, and the compiled kernels release the GIL), with a bounded number of
+chunks in flight: memory stays at a few chunks whatever the length of the run. Edge rows
+are kept only until both neighbours of an edge are done.
+
 Contract of a statistic
 -----------------------
 ``chunk(block)`` runs in worker threads: it must not mutate shared state and returns a
 partial result. ``merge(ref, partial)`` and ``pair(...)`` run in the calling thread, in
 any order of chunks. ``finish(faults)`` returns the reduced result; ``faults`` lists the
 chunks that could not be read, which the statistic must treat as missing data.
+``prepare(peers)`` (optional) is called once before the pass with every statistic of it,
+so that statistics can share work. A statistic that raises is dropped from the pass (its
+message is in :attr:`ScanResult.errors`); the others go on.
 """
 
 from __future__ import annotations
 
+import itertools
+import math
+import os
+import time
 from abc import ABC, abstractmethod
 from collections.abc import Callable, Iterable
+from concurrent.futures import FIRST_COMPLETED, Future, ThreadPoolExecutor, wait
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
 
 import numpy as np
 
+from ._chunk_read import ChunkReader, MissingChunk
 from .reader import Block, ChunkRef, Run
 
 __all__ = [
@@ -30,6 +44,7 @@ __all__ = [
     "ScanResult",
     "Statistic",
     "available_statistics",
+    "default_workers",
     "register_statistic",
     "scan",
 ]
@@ -55,6 +70,9 @@ class Statistic(ABC):
     def __init__(self, run: Run, **options: Any) -> None:
         self.run = run
         self.options = options
+
+    def prepare(self, peers: list[Statistic]) -> None:  # noqa: B027 - optional hook
+        """Called once before the pass with all statistics of the pass (default: nothing)."""
 
     @abstractmethod
     def chunk(self, block: Block) -> Any:
@@ -95,12 +113,181 @@ def available_statistics() -> dict[str, type[Statistic]]:
 
 @dataclass
 class ScanResult:
-    """Results by statistic name, the chunks that could not be read, and counters."""
+    """Results by statistic name, the chunks that could not be read, and counters.
+
+    ``results`` holds the first instance of each name; ``ordered`` holds one result per
+    statistic passed to :func:`scan`, in that order (None for one that raised), and
+    ``errors`` the one-line message of each statistic that raised, by its position.
+    """
 
     results: dict[str, Any]
     faults: list[ChunkFault] = field(default_factory=list)
     chunks_read: int = 0
     bytes_decoded: int = 0
+    ordered: list[Any] = field(default_factory=list)
+    errors: dict[int, str] = field(default_factory=dict)
+    seconds: float = 0.0
+
+
+def default_workers() -> int:
+    """Worker threads used when none are asked for: the CPUs this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _one_line(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return f"{type(exc).__name__}: {text[0]}" if text else type(exc).__name__
+
+
+def _stored_keys(run: Run) -> tuple[set[str], str] | None:
+    """Every key stored under the ``mass`` array, listed once; None if the store cannot list."""
+    from zarr.core.sync import collect_aiterator
+
+    try:
+        arr = run.mass
+        path = arr.store_path.path
+        prefix = f"{path}/" if path else ""
+        keys = collect_aiterator(arr.store_path.store.list_prefix(prefix))
+        return set(keys), prefix
+    except Exception:  # a store that cannot list: missing chunks then read as the sentinel
+        return None
+
+
+def _missing_chunks(run: Run, refs: list[ChunkRef]) -> dict[int, str]:
+    """Chunks with a storage object absent from the store, by position in ``refs``."""
+    listed = _stored_keys(run)
+    if listed is None or not refs:
+        return {}
+    stored, prefix = listed
+    arr = run.mass
+    grid = tuple(arr.shards or arr.chunks)
+    lattice = [range(math.ceil(n / g)) for n, g in zip(arr.shape[2:], grid[2:], strict=True)]
+    encode = arr.metadata.encode_chunk_key
+    out: dict[int, str] = {}
+    for i, ref in enumerate(refs):
+        times = range(ref.start // grid[1], (ref.stop - 1) // grid[1] + 1)
+        for t, rest in itertools.product(times, itertools.product(*lattice)):
+            key = prefix + encode((ref.replica // grid[0], t, *rest))
+            if key not in stored:
+                out[i] = f"{key}: not in the store (it would read as the fill value)"
+                break
+    return out
+
+
+@dataclass
+class _Done:
+    index: int
+    fault: ChunkFault | None = None
+    partials: list[Any] = field(default_factory=list)
+    first: np.ndarray | None = None
+    last: np.ndarray | None = None
+    nbytes: int = 0
+
+
+class _Raised:
+    def __init__(self, exc: BaseException) -> None:
+        self.message = _one_line(exc)
+
+
+def _work(
+    reader: ChunkReader,
+    index: int,
+    ref: ChunkRef,
+    stats: list[Statistic],
+    broken: dict[int, str],
+    edges: bool,
+) -> _Done:
+    try:
+        block = reader.read(ref)
+    except MissingChunk as exc:
+        return _Done(index, fault=ChunkFault(ref, "missing", str(exc)))
+    except Exception as exc:  # any decode failure is a fault of this chunk only
+        return _Done(index, fault=ChunkFault(ref, "corrupt", _one_line(exc)))
+    partials: list[Any] = []
+    for k, s in enumerate(stats):
+        if k in broken:
+            partials.append(None)
+            continue
+        try:
+            partials.append(s.chunk(block))
+        except Exception as exc:
+            partials.append(_Raised(exc))
+    done = _Done(index, partials=partials, nbytes=int(block.mass.nbytes))
+    if edges and len(block.mass):
+        done.first, done.last = block.mass[0].copy(), block.mass[-1].copy()
+    return done
+
+
+class _Pass:
+    """State of one pass in the calling thread: merging, edge pairs, faults, errors."""
+
+    def __init__(self, refs: list[ChunkRef], stats: list[Statistic]) -> None:
+        self.refs = refs
+        self.stats = stats
+        self.pairing = [k for k, s in enumerate(stats) if s.pairs]
+        self.broken: dict[int, str] = {}
+        self.faults: list[ChunkFault] = []
+        self.state: dict[int, bool] = {}  # index -> True (read) / False (fault)
+        self.firsts: dict[int, np.ndarray] = {}
+        self.lasts: dict[int, np.ndarray] = {}
+        self.read = 0
+        self.nbytes = 0
+
+    def _call(self, k: int, fn: Callable[..., Any], *args: Any) -> None:
+        try:
+            fn(*args)
+        except Exception as exc:
+            self.broken.setdefault(k, _one_line(exc))
+
+    def _neighbour(self, i: int, step: int) -> int | None:
+        j = i + step
+        if not 0 <= j < len(self.refs):
+            return None
+        a, b = self.refs[min(i, j)], self.refs[max(i, j)]
+        return j if a.replica == b.replica and a.stop == b.start else None
+
+    def _pair(self, later: int, before: np.ndarray, after: np.ndarray) -> None:
+        ref = self.refs[later]
+        for k in self.pairing:
+            if k not in self.broken:
+                self._call(k, self.stats[k].pair, ref.replica, ref.start, before, after)
+
+    def resolve(self, done: _Done) -> None:
+        i = done.index
+        if done.fault is not None:
+            self.faults.append(done.fault)
+            self.state[i] = False
+        else:
+            self.read += 1
+            self.nbytes += done.nbytes
+            ref = self.refs[i]
+            for k, (s, part) in enumerate(zip(self.stats, done.partials, strict=True)):
+                if k in self.broken:
+                    continue
+                if isinstance(part, _Raised):
+                    self.broken[k] = part.message
+                else:
+                    self._call(k, s.merge, ref, part)
+            self.state[i] = True
+        if not self.pairing:
+            return
+        ok = self.state[i]
+        prev, nxt = self._neighbour(i, -1), self._neighbour(i, +1)
+        if prev is not None and prev in self.state:
+            before = self.lasts.pop(prev, None)
+            if ok and before is not None:
+                self._pair(i, before, done.first)
+        elif prev is not None and ok:
+            self.firsts[i] = done.first  # wait for the previous chunk
+        if nxt is not None and nxt in self.state:
+            after = self.firsts.pop(nxt, None)
+            if ok and after is not None:
+                self._pair(nxt, done.last, after)
+        elif nxt is not None and ok:
+            self.lasts[i] = done.last  # wait for the next chunk
 
 
 def scan(
@@ -108,46 +295,87 @@ def scan(
     statistics: Iterable[Statistic],
     *,
     progress: Callable[[int, int], None] | None = None,
+    workers: int | None = None,
+    in_flight: int | None = None,
+    direct: bool = True,
 ) -> ScanResult:
     """Read every committed chunk of ``run`` once and feed it to every statistic.
 
-    ``progress(done, total)`` is called after each chunk. A chunk that fails to decode
-    (checksum mismatch, truncated file) or is missing from the store becomes a
-    :class:`ChunkFault`; the pass goes on without it.
+    ``progress(done, total)`` is called (in the calling thread) after each chunk. A chunk
+    that fails to decode (checksum mismatch, truncated file) or whose storage object is
+    missing (found by listing the store once, before the pass) becomes a
+    :class:`ChunkFault`; the pass goes on without it. ``workers`` threads decode and
+    reduce chunks (default :func:`default_workers`); at most ``in_flight`` chunks (default
+    twice the workers) are decoded or waiting at any time. ``direct=False`` decodes every
+    chunk through zarr-python (see :mod:`massarc.archive._chunk_read`).
+
+    >>> from massarc.archive.stats import SnapshotStatistic   # doctest: +SKIP
+    >>> res = scan(run, [SnapshotStatistic(run)])               # doctest: +SKIP
+    >>> res.results["snapshots"].total.shape == (run.n_replicas, run.n_snapshots)  # doctest: +SKIP
+    True
     """
+    started = time.perf_counter()
     stats = list(statistics)
-    refs = run.chunk_refs()
-    faults: list[ChunkFault] = []
-    need_pairs = any(s.pairs for s in stats)
-    edges: dict[tuple[int, int], np.ndarray] = {}  # (replica, snapshot) -> first/last row
-    read = 0
-    nbytes = 0
-    for i, ref in enumerate(refs):
-        try:
-            block = run.read_chunk(ref)
-        except Exception as exc:  # any decode failure is a fault of this chunk only
-            faults.append(ChunkFault(ref, "corrupt", f"{type(exc).__name__}: {exc}"))
-            if progress:
-                progress(i + 1, len(refs))
-            continue
-        read += 1
-        nbytes += block.mass.nbytes
-        for s in stats:
-            s.merge(ref, s.chunk(block))
-        if need_pairs and len(block.mass):
-            edges[(ref.replica, ref.start)] = block.mass[0]
-            edges[(ref.replica, ref.stop - 1)] = block.mass[-1]
-            before = edges.get((ref.replica, ref.start - 1))
-            if before is not None:
-                for s in stats:
-                    if s.pairs:
-                        s.pair(ref.replica, ref.start, before, block.mass[0])
-            after = edges.get((ref.replica, ref.stop))
-            if after is not None:
-                for s in stats:
-                    if s.pairs:
-                        s.pair(ref.replica, ref.stop, block.mass[-1], after)
+    state = _Pass(run.chunk_refs(), stats)
+    for k, s in enumerate(stats):
+        state._call(k, s.prepare, stats)
+    refs = state.refs
+    reader = ChunkReader(run, direct=direct)
+    # the direct reader finds absent chunk files as it opens them; zarr would fill them in
+    missing = {} if reader.direct else _missing_chunks(run, refs)
+    n_workers = max(1, workers or default_workers())
+    limit = max(1, in_flight or 2 * n_workers)
+    edges = bool(state.pairing)
+    done_count = 0
+    pending: set[Future[_Done]] = set()
+    order = iter(range(len(refs)))
+
+    def tick() -> None:
+        nonlocal done_count
+        done_count += 1
         if progress:
-            progress(i + 1, len(refs))
-    results = {s.name: s.finish(faults) for s in stats}
-    return ScanResult(results, faults, read, nbytes)
+            progress(done_count, len(refs))
+
+    pool = ThreadPoolExecutor(max_workers=n_workers, thread_name_prefix="massarc-scan")
+    try:
+        while True:
+            while len(pending) < limit:
+                i = next(order, None)
+                if i is None:
+                    break
+                if i in missing:
+                    state.resolve(_Done(i, fault=ChunkFault(refs[i], "missing", missing[i])))
+                    tick()
+                    continue
+                pending.add(pool.submit(_work, reader, i, refs[i], stats, state.broken, edges))
+            if not pending:
+                break
+            finished, pending = wait(pending, return_when=FIRST_COMPLETED)
+            for fut in sorted(finished, key=lambda f: f.result().index):
+                state.resolve(fut.result())
+                tick()
+    finally:
+        pool.shutdown(wait=True, cancel_futures=True)
+    faults = sorted(state.faults, key=lambda f: (f.ref.replica, f.ref.start))
+    ordered: list[Any] = []
+    for k, s in enumerate(stats):
+        result = None
+        if k not in state.broken:
+            try:
+                result = s.finish(list(faults))
+            except Exception as exc:
+                state.broken[k] = _one_line(exc)
+        ordered.append(result)
+    results: dict[str, Any] = {}
+    for k, s in enumerate(stats):
+        if k not in state.broken:
+            results.setdefault(s.name, ordered[k])
+    return ScanResult(
+        results,
+        faults,
+        state.read,
+        state.nbytes,
+        ordered,
+        dict(state.broken),
+        time.perf_counter() - started,
+    )

@@ -43,7 +43,8 @@ class CheckContext:
 
     ``stats`` maps statistic names to the results of the single pass. ``cache`` is shared
     by all checks of one run, for derived analyses several checks use (the stationary
-    window, for instance); use :meth:`derived` to fill it once.
+    window, for instance); use :meth:`derived` to fill it once. ``faults`` lists the chunks
+    the pass could not read (:class:`massarc.archive.scan.ChunkFault`), in run order.
     """
 
     run: Run
@@ -51,6 +52,7 @@ class CheckContext:
     stats: Mapping[str, Any]
     options: Mapping[str, Any]
     cache: dict[str, Any] = field(default_factory=dict)
+    faults: list[Any] = field(default_factory=list)
 
     def derived(self, key: str, compute: Any) -> Any:
         """Return ``cache[key]``, computing it with ``compute(self)`` the first time."""
@@ -72,12 +74,18 @@ class Check(ABC):
         ``{statistic name: options}`` of the single pass this check reads.
     options
         Tunable options and thresholds with their defaults; configuration may override.
+    requires
+        Preconditions the runner checks before calling :meth:`run`; when one fails the
+        result is ``skip`` with the reason: ``"metadata"`` (a valid header) and ``"data"``
+        (at least one committed snapshot). None (the default) means ``("data",)`` for a
+        check with ``needs`` and nothing otherwise.
     """
 
     id: ClassVar[str]
     description: ClassVar[str]
     needs: ClassVar[Mapping[str, Mapping[str, Any]]] = {}
     options: ClassVar[Mapping[str, Any]] = {}
+    requires: ClassVar[tuple[str, ...] | None] = None
 
     @abstractmethod
     def run(self, ctx: CheckContext) -> CheckResult:

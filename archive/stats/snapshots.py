@@ -1,4 +1,20 @@
-"""Per-snapshot moments: the ``snapshots`` statistic."""
+"""Per-snapshot moments: the ``snapshots`` statistic.
+
+Every (replica, snapshot) is reduced to its total, extrema, sum of squares, number of
+occupied sites and position of the largest mass, and the first impossible values are
+located (see :mod:`massarc.archive.stats._kernels` for the exact semantics). When a
+``histogram`` statistic runs in the same pass, both share one fused loop over each chunk.
+
+>>> import numpy as np
+>>> from massarc.archive import Block
+>>> from types import SimpleNamespace
+>>> run = SimpleNamespace(n_replicas=1, n_snapshots=2, dtype=np.dtype("uint8"))
+>>> stat = SnapshotStatistic(run)
+>>> block = Block(0, 0, 2, np.array([[1, 0, 3], [2, 2, 0]], np.uint8))
+>>> stat.merge(block, stat.chunk(block))
+>>> stat.finish([]).total.tolist()
+[[4, 4]]
+"""
 
 from __future__ import annotations
 
@@ -10,6 +26,7 @@ import numpy as np
 from ..layout import sentinel
 from ..reader import Block, ChunkRef
 from ..scan import ChunkFault, Statistic, register_statistic
+from ._kernels import Plan, reduce_block
 
 __all__ = ["SnapshotStatistic", "SnapshotStats"]
 
@@ -40,13 +57,7 @@ class SnapshotStats:
     n_sentinel: int
 
 
-def _first(mask: np.ndarray, replica: int, start: int) -> tuple[Location | None, int]:
-    n = int(np.count_nonzero(mask))
-    if not n:
-        return None, 0
-    flat = int(np.argmax(mask.reshape(-1)))
-    t, site = divmod(flat, int(np.prod(mask.shape[1:])))
-    return (replica, start + t, site), n
+_KINDS = ("negative", "fractional", "sentinel")
 
 
 @register_statistic
@@ -65,58 +76,63 @@ class SnapshotStatistic(Statistic):
         self._occ = np.zeros((r, t), np.int64)
         self._argmax = np.zeros((r, t), np.int64)
         self._valid = np.zeros((r, t), bool)
-        self._firsts: dict[str, list[tuple[Location, int]]] = {
-            "negative": [],
-            "fractional": [],
-            "sentinel": [],
-        }
+        self._firsts: dict[str, list[tuple[Location, int]]] = {k: [] for k in _KINDS}
         dt = run.dtype
         self._sentinel = sentinel(dt) if dt.kind in "ui" else None
+        self.plan = Plan(sentinel=self._sentinel)
+
+    def prepare(self, peers: list[Statistic]) -> None:
+        """Share one fused loop with the first ``histogram`` statistic of the pass."""
+        from .histogram import HistogramStatistic
+
+        for peer in peers:
+            if isinstance(peer, HistogramStatistic) and not peer.fused:
+                self.plan = Plan(self._sentinel, peer.bins, peer.edges)
+                peer.plan, peer.fused = self.plan, True
+                return
 
     def chunk(self, block: Block) -> Any:
-        x = block.mass.reshape(block.mass.shape[0], -1)
-        out: dict[str, Any] = {}
-        if x.dtype.kind == "f":
-            frac = ~np.isfinite(x) | (x != np.floor(x))
-            out["fractional"] = _first(frac, block.replica, block.start)
-            x = np.where(frac, 0, x)
-        xi = x.astype(np.int64, copy=False)
-        out["total"] = xi.sum(axis=1)
-        out["max"] = xi.max(axis=1)
-        out["min"] = xi.min(axis=1)
-        out["sq"] = np.einsum("ij,ij->i", xi.astype(np.float64), xi.astype(np.float64))
-        out["occ"] = np.count_nonzero(xi, axis=1)
-        out["argmax"] = xi.argmax(axis=1)
-        if x.dtype.kind in "if":
-            out["negative"] = _first(xi < 0, block.replica, block.start)
-        if self._sentinel is not None:
-            out["sentinel"] = _first(x == self._sentinel, block.replica, block.start)
-        return out
+        red = reduce_block(block, self.plan)
+        sites = int(np.prod(block.mass.shape[1:]))
+
+        def loc(flat: int) -> Location | None:
+            if flat < 0:
+                return None
+            row, site = divmod(flat, sites)
+            return (block.replica, block.start + row, site)
+
+        return {
+            "moments": (
+                red.total,
+                red.maximum,
+                red.minimum,
+                red.sum_sq,
+                red.occupied,
+                red.argmax,
+            ),
+            "negative": (loc(red.first_negative), red.n_negative),
+            "fractional": (loc(red.first_fractional), red.n_fractional),
+            "sentinel": (loc(red.first_sentinel), red.n_sentinel),
+        }
 
     def merge(self, ref: ChunkRef, partial: Any) -> None:
         sl = (ref.replica, slice(ref.start, ref.stop))
-        self._total[sl] = partial["total"]
-        self._max[sl] = partial["max"]
-        self._min[sl] = partial["min"]
-        self._sq[sl] = partial["sq"]
-        self._occ[sl] = partial["occ"]
-        self._argmax[sl] = partial["argmax"]
+        arrays = (self._total, self._max, self._min, self._sq, self._occ, self._argmax)
+        for target, values in zip(arrays, partial["moments"], strict=True):
+            target[sl] = values
         self._valid[sl] = True
         for key, bucket in self._firsts.items():
-            loc, n = partial.get(key, (None, 0))
-            if loc is not None:
-                bucket.append((loc, n))
+            found, n = partial[key]
+            if found is not None:
+                bucket.append((found, n))
 
     def finish(self, faults: list[ChunkFault]) -> SnapshotStats:
         def first(key: str) -> tuple[Location | None, int]:
             bucket = self._firsts[key]
             if not bucket:
                 return None, 0
-            return min(loc for loc, _ in bucket), sum(n for _, n in bucket)
+            return min(found for found, _ in bucket), sum(n for _, n in bucket)
 
-        neg, n_neg = first("negative")
-        frac, n_frac = first("fractional")
-        sen, n_sen = first("sentinel")
         return SnapshotStats(
             self._total,
             self._max,
@@ -125,10 +141,7 @@ class SnapshotStatistic(Statistic):
             self._occ,
             self._argmax,
             self._valid,
-            neg,
-            n_neg,
-            frac,
-            n_frac,
-            sen,
-            n_sen,
+            *first("negative"),
+            *first("fractional"),
+            *first("sentinel"),
         )

@@ -16,9 +16,9 @@ def cli() -> None:
 
 
 def _register() -> None:
-    from . import info, sample, schema_cmd
+    from . import check, info, sample, schema_cmd
 
-    for module in (info, schema_cmd, sample):
+    for module in (info, schema_cmd, sample, check):
         cli.add_command(module.command)
 
 

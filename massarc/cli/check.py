@@ -1,0 +1,142 @@
+"""``massarc check``: audit runs and collections; report as a table, JSON or JUnit XML.
+
+Exit status: 0 when no check failed, 1 when a check failed or raised, 2 when an input
+could not be read (not a Zarr group, not a massarc run, unknown major format version) or
+the command line or configuration was wrong, with one line ``massarc check: error: ...``
+on stderr.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import Any
+
+import click
+
+from massarc.validators import (
+    ConfigError,
+    audit,
+    available_checks,
+    open_for_audit,
+    render,
+    resolve_settings,
+)
+from massarc.validators.report import FORMATS, render_table
+
+from ._common import bad_input, die, progress_bar
+
+__all__ = ["command"]
+
+_NAME = "check"
+
+
+class _OneLineErrors(click.Command):
+    """Usage errors as one line on stderr with status 2, like every other bad input."""
+
+    def make_context(self, info_name: Any, args: Any, parent: Any = None, **extra: Any) -> Any:
+        try:
+            return super().make_context(info_name, args, parent=parent, **extra)
+        except click.UsageError as exc:
+            die(_NAME, exc.format_message())
+
+
+def _listing() -> str:
+    lines = []
+    checks = available_checks()
+    width = max((len(c) for c in checks), default=0)
+    for cid, cls in checks.items():
+        opts = ", ".join(f"{k}={v!r}" for k, v in cls.options.items())
+        tail = f"  [options: {opts}]" if opts else ""
+        lines.append(f"{cid:<{width}}  {cls.description}{tail}")
+    return "\n".join(lines)
+
+
+@click.command(_NAME, cls=_OneLineErrors)
+@click.argument("runs", nargs=-1, metavar="RUN_OR_COLLECTION...")
+@click.option(
+    "--format",
+    "fmt",
+    type=click.Choice(FORMATS),
+    default="table",
+    show_default=True,
+    help="table: for people; json: for scripts; junit: JUnit XML for CI systems.",
+)
+@click.option("--output", "-o", type=click.Path(dir_okay=False), help="Write the report here.")
+@click.option("--strict/--no-strict", default=None, help="Warnings count as failures.")
+@click.option("--skip", multiple=True, metavar="ID", help="Do not run this check (repeatable).")
+@click.option("--only", multiple=True, metavar="ID", help="Run only this check (repeatable).")
+@click.option(
+    "--set",
+    "sets",
+    multiple=True,
+    metavar="ID.OPTION=VALUE",
+    help="Set a check option, e.g. conservation.tolerance=0 (repeatable).",
+)
+@click.option(
+    "--config",
+    type=click.Path(dir_okay=False),
+    help="Settings file (default: massarc.toml beside the runs, else pyproject.toml).",
+)
+@click.option("--list", "list_", is_flag=True, help="List the registered checks and exit.")
+@click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
+@click.option("--quiet", "-q", is_flag=True, help="No progress bar; table: only non-passing.")
+def command(
+    runs: tuple[str, ...],
+    fmt: str,
+    output: str | None,
+    strict: bool | None,
+    skip: tuple[str, ...],
+    only: tuple[str, ...],
+    sets: tuple[str, ...],
+    config: str | None,
+    list_: bool,
+    workers: int | None,
+    quiet: bool,
+) -> None:
+    """Audit runs: metadata, integrity, time order, masses, conservation, and the
+    statistical checks (see --list)."""
+    if list_:
+        click.echo(_listing())
+        return
+    if not runs:
+        die(_NAME, "expected at least one RUN_OR_COLLECTION; got none")
+    try:
+        settings = resolve_settings(
+            config=config, locations=runs, skip=skip, only=only, strict=strict, sets=sets
+        )
+    except ConfigError as exc:
+        die(_NAME, str(exc))
+    opened = []
+    with bad_input(_NAME):
+        for location in runs:
+            opened.extend(open_for_audit(location))
+    total = sum(len(r.chunk_refs()) for r in opened)
+    with progress_bar("auditing", total, quiet=quiet, unit="chunks") as advance:
+        try:
+            report = audit(
+                opened,
+                checks=settings.only,
+                skip=settings.skip,
+                options=settings.options,
+                strict=settings.strict,
+                progress=lambda done, _total: advance(done),
+                workers=workers,
+                config=settings.source,
+            )
+        except ConfigError as exc:
+            die(_NAME, str(exc))
+    if output is not None:
+        try:
+            with Path(output).open("w", encoding="utf-8") as out:
+                if fmt == "table":
+                    render_table(report, out, quiet=quiet)
+                else:
+                    out.write(render(report, fmt))
+        except OSError as exc:
+            die(_NAME, f"{output}: cannot write the report ({exc.strerror})")
+    elif fmt == "table":
+        render_table(report, sys.stdout, quiet=quiet)
+    else:
+        click.echo(render(report, fmt), nl=False)
+    sys.exit(report.exit_code)

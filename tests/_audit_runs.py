@@ -1,0 +1,61 @@
+"""Run builders for the audit tests (scan, checks, reports, configuration, CLI).
+
+Runs are written with the archive writer from small multinomial data (exactly ``mass``
+per snapshot); ``edit`` plants a fault in the array before it is written.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from conftest import make_meta, multinomial_run
+
+from massarc.archive import create_run
+from massarc.schema import RunMeta
+
+__all__ = ["chunk_file", "write_run"]
+
+
+def write_run(
+    path: Path | str,
+    *,
+    replicas: int = 3,
+    snapshots: int = 60,
+    sites: tuple[int, ...] = (16,),
+    mass: int = 40,
+    seed: int = 0,
+    chunk: int = 10,
+    dtype: Any = None,
+    strict: bool = True,
+    edit: Callable[[np.ndarray, np.ndarray], None] | None = None,
+    meta: RunMeta | None = None,
+    close: bool = True,
+    **series: np.ndarray,
+) -> Path:
+    """Write a run of ``replicas`` x ``snapshots`` with chunks of ``chunk`` snapshots.
+
+    ``edit(mass, times)`` may change the arrays in place first (a planted fault).
+    """
+    data = multinomial_run(replicas, snapshots, sites, mass, seed)
+    times = np.arange(snapshots, dtype=np.float64) * 0.5
+    if dtype is not None:
+        data = data.astype(dtype)
+    if edit is not None:
+        edit(data, times)
+    meta = meta or make_meta(sites=sites)
+    w = create_run(path, meta, dtype=dtype, snapshots_hint=chunk, strict=strict)
+    w.append(times, data, **series)
+    if close:
+        w.close()
+    else:
+        w.flush()
+    return Path(path)
+
+
+def chunk_file(run: Path, replica: int, k: int) -> Path:
+    """The file of chunk ``k`` (along time) of ``replica`` in a 1D or 2D run."""
+    files = sorted((run / "mass" / "c" / str(replica) / str(k)).rglob("*"))
+    return next(f for f in files if f.is_file())

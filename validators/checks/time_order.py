@@ -1,0 +1,52 @@
+"""The ``time-order`` check: snapshot times are finite and strictly increasing."""
+
+from __future__ import annotations
+
+from typing import ClassVar
+
+import numpy as np
+
+from ..registry import Check, CheckContext, register_check
+from ..result import CheckResult
+
+__all__ = ["TimeOrderCheck"]
+
+
+@register_check
+class TimeOrderCheck(Check):
+    id = "time-order"
+    description = "snapshot times are finite and strictly increasing"
+    requires: ClassVar = ("data",)
+
+    def run(self, ctx: CheckContext) -> CheckResult:
+        try:
+            t = ctx.run.times
+        except Exception as exc:  # a damaged time array is a fault of the run, not of us
+            text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+            return self.result("fail", f"time array unreadable: {text}")
+        n = ctx.run.n_snapshots
+        if len(t) != n:
+            return self.result(
+                "fail",
+                f"time array: expected {n} committed times (one per snapshot); got {len(t)}",
+                values={"times": len(t), "snapshots": n},
+            )
+        finite = np.isfinite(t)
+        with np.errstate(invalid="ignore"):
+            back = np.zeros(len(t), bool)
+            back[1:] = (t[1:] <= t[:-1]) & finite[1:] & finite[:-1]
+        bad = ~finite | back
+        count = int(np.count_nonzero(bad))
+        if not count:
+            span = f" from {t[0]:g} to {t[-1]:g}" if len(t) else ""
+            return self.result("pass", f"{len(t)} times increase strictly{span}")
+        i = int(np.argmax(bad))
+        values = {"time": float(t[i]), "offending": count}
+        if not finite[i]:
+            message = f"snapshot {i}: time {t[i]} is not finite"
+        else:
+            values["previous"] = float(t[i - 1])
+            message = f"snapshot {i}: time {t[i]:g} is not after the previous {t[i - 1]:g}"
+        if count > 1:
+            message += f" ({count} snapshots out of order or not finite)"
+        return self.result("fail", message, values=values, where={"snapshot": i})

@@ -1,0 +1,260 @@
+"""Audit settings from files and the command line.
+
+A project's ``pyproject.toml`` (found by searching upward from the current directory)
+holds them under ``[tool.massarc]``; a ``massarc.toml`` beside the runs holds the same keys
+at its top level, and wins over ``pyproject.toml``; ``--config FILE`` wins over both. Only
+one file is read. Keys::
+
+    [tool.massarc]
+    skip = ["steady-state"]          # check ids not to run
+    strict = true                    # warnings count as failures
+    [tool.massarc.checks.conservation]
+    tolerance = 0                    # per-check options (see ``massarc check --list``)
+
+Command-line options override the file: ``--strict``/``--no-strict`` replace ``strict``,
+``--skip`` adds to ``skip``, ``--only`` runs exactly the checks it names (even those the
+file skips), and
+``--set ID.OPTION=VALUE`` replaces one option. Unknown check ids, option names or keys
+are errors naming the file and key.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from collections.abc import Iterable, Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+from pydantic import BaseModel, ConfigDict, Field
+
+from massarc.schema import MetadataError, apply_overrides
+
+from .registry import Check, available_checks
+
+__all__ = [
+    "FILE_NAME",
+    "AuditSettings",
+    "ConfigError",
+    "check_options",
+    "find_config",
+    "load_settings",
+    "parse_settings",
+    "resolve_settings",
+]
+
+#: Name of the configuration file looked for beside the runs.
+FILE_NAME = "massarc.toml"
+_KEYS = ("checks", "skip", "strict")
+
+
+class ConfigError(ValueError):
+    """Configuration that cannot be used; the message names the file (or option) and key."""
+
+
+class AuditSettings(BaseModel):
+    """Which checks run, with which options, and whether warnings fail (frozen)."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    skip: tuple[str, ...] = ()
+    only: tuple[str, ...] | None = None
+    strict: bool = False
+    options: dict[str, dict[str, Any]] = Field(default_factory=dict)
+    source: str | None = Field(None, description="The file the settings came from.")
+
+
+def _known(checks: Mapping[str, type[Check]]) -> str:
+    return ", ".join(checks) or "(none)"
+
+
+def _check_ids(
+    ids: Iterable[Any], checks: Mapping[str, type[Check]], where: str
+) -> tuple[str, ...]:
+    out = []
+    for cid in ids:
+        if not isinstance(cid, str) or cid not in checks:
+            raise ConfigError(f"{where}: expected one of {_known(checks)}; got {cid!r}")
+        out.append(cid)
+    return tuple(dict.fromkeys(out))
+
+
+def _option_value(value: Any, default: Any, where: str) -> Any:
+    """``value`` if it has the type of ``default`` (ints and floats mix), else an error."""
+    if default is None:
+        return value
+    if isinstance(default, bool):
+        ok, what = isinstance(value, bool), "true or false"
+    elif isinstance(default, int | float):
+        ok, what = isinstance(value, int | float) and not isinstance(value, bool), "a number"
+    elif isinstance(default, str):
+        ok, what = isinstance(value, str), "a string"
+    elif isinstance(default, list | tuple):
+        ok, what = isinstance(value, list | tuple), "a list"
+    elif isinstance(default, Mapping):
+        ok, what = isinstance(value, Mapping), "a table"
+    else:
+        ok, what = True, ""
+    if not ok:
+        raise ConfigError(f"{where}: expected {what}; got {value!r}")
+    return value
+
+
+def check_options(
+    options: Mapping[str, Any],
+    checks: Mapping[str, type[Check]] | None = None,
+    where: str = "options",
+    sep: str = ".",
+) -> dict[str, dict[str, Any]]:
+    """Validate ``{check id: {option: value}}`` against the checks' declared options;
+    errors name ``where`` + ``sep`` + the key path.
+
+    >>> check_options({"conservation": {"tolerance": 2}})
+    {'conservation': {'tolerance': 2}}
+    """
+    checks = available_checks() if checks is None else checks
+    out: dict[str, dict[str, Any]] = {}
+    for cid, opts in options.items():
+        if cid not in checks:
+            raise ConfigError(f"{where}: expected a check id, one of {_known(checks)}; got {cid!r}")
+        if not isinstance(opts, Mapping):
+            raise ConfigError(f"{where}{sep}{cid}: expected a table of options; got {opts!r}")
+        declared = checks[cid].options
+        for name, value in opts.items():
+            if name not in declared:
+                known = ", ".join(declared) or "(this check has no options)"
+                raise ConfigError(f"{where}{sep}{cid}: expected one of {known}; got {name!r}")
+            out.setdefault(cid, {})[name] = _option_value(
+                value, declared[name], f"{where}{sep}{cid}.{name}"
+            )
+    return out
+
+
+def parse_settings(
+    data: Mapping[str, Any],
+    source: str | None = None,
+    prefix: str = "",
+    checks: Mapping[str, type[Check]] | None = None,
+) -> AuditSettings:
+    """Validate a settings table (the contents of ``[tool.massarc]`` or ``massarc.toml``)."""
+    checks = available_checks() if checks is None else checks
+    head = f"{source}: " if source else ""
+    for key in data:
+        if key not in _KEYS:
+            raise ConfigError(
+                f"{head}{prefix}{key}: expected one of {', '.join(_KEYS)}; got {key!r}"
+            )
+    skip = data.get("skip", [])
+    if not isinstance(skip, list):
+        raise ConfigError(f"{head}{prefix}skip: expected a list of check ids; got {skip!r}")
+    strict = data.get("strict", False)
+    if not isinstance(strict, bool):
+        raise ConfigError(f"{head}{prefix}strict: expected true or false; got {strict!r}")
+    table = data.get("checks", {})
+    if not isinstance(table, Mapping):
+        raise ConfigError(f"{head}{prefix}checks: expected a table; got {table!r}")
+    return AuditSettings(
+        skip=_check_ids(skip, checks, f"{head}{prefix}skip"),
+        strict=strict,
+        options=check_options(table, checks, f"{head}{prefix}checks"),
+        source=source,
+    )
+
+
+def load_settings(
+    path: str | Path, checks: Mapping[str, type[Check]] | None = None
+) -> AuditSettings:
+    """Read settings from a ``pyproject.toml`` (``[tool.massarc]``) or any other TOML file
+    (top level)."""
+    p = Path(path)
+    try:
+        data = tomllib.loads(p.read_text(encoding="utf-8"))
+    except OSError as exc:
+        raise ConfigError(f"{p}: cannot read the configuration ({exc.strerror})") from None
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise ConfigError(f"{p}: invalid TOML ({exc})") from None
+    if p.name == "pyproject.toml":
+        tool = data.get("tool", {})
+        table = tool.get("massarc", {}) if isinstance(tool, Mapping) else {}
+        if not isinstance(table, Mapping):
+            raise ConfigError(f"{p}: tool.massarc: expected a table; got {table!r}")
+        return parse_settings(table, str(p), "tool.massarc.", checks)
+    return parse_settings(data, str(p), "", checks)
+
+
+def _has_tool_table(path: Path) -> bool:
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (OSError, tomllib.TOMLDecodeError, UnicodeDecodeError):
+        return True  # let load_settings report the problem with the file's name
+    tool = data.get("tool")
+    return isinstance(tool, Mapping) and "massarc" in tool
+
+
+def find_config(locations: Sequence[Any] = (), cwd: str | Path | None = None) -> Path | None:
+    """The configuration file that applies: ``massarc.toml`` in or beside the first run
+    location that has one, else the nearest ``pyproject.toml`` with ``[tool.massarc]``
+    from ``cwd`` (default: the current directory) upward; None if there is none."""
+    for loc in locations:
+        if not isinstance(loc, str | Path) or "://" in str(loc):
+            continue
+        p = Path(loc)
+        for candidate in (p / FILE_NAME, p.parent / FILE_NAME):
+            if candidate.is_file():
+                return candidate
+    here = Path(cwd) if cwd is not None else Path.cwd()
+    for d in (here.resolve(), *here.resolve().parents):
+        candidate = d / "pyproject.toml"
+        if candidate.is_file() and _has_tool_table(candidate):
+            return candidate
+    return None
+
+
+def _parse_sets(items: Iterable[str], checks: Mapping[str, type[Check]]) -> dict:
+    out: dict[str, dict[str, Any]] = {}
+    for item in items:
+        key = item.partition("=")[0].strip()
+        if "=" not in item or key.count(".") != 1:
+            raise ConfigError(f"--set {item!r}: expected ID.OPTION=VALUE")
+        try:
+            parsed = apply_overrides({}, [item])  # values are TOML literals, else strings
+        except MetadataError as exc:
+            raise ConfigError(f"--set {item!r}: {'; '.join(exc.problems)}") from None
+        for cid, opts in parsed.items():
+            out.setdefault(cid, {}).update(opts)
+    return check_options(out, checks, "--set", " ")
+
+
+def resolve_settings(
+    *,
+    config: str | Path | None = None,
+    locations: Sequence[Any] = (),
+    cwd: str | Path | None = None,
+    skip: Iterable[str] = (),
+    only: Iterable[str] = (),
+    strict: bool | None = None,
+    sets: Iterable[str] = (),
+    checks: Mapping[str, type[Check]] | None = None,
+) -> AuditSettings:
+    """Settings of one ``massarc check`` call: the file that applies, then the command line.
+
+    >>> s = resolve_settings(cwd="/", skip=["schema"], sets=["conservation.tolerance=1"])
+    >>> s.skip, s.options
+    (('schema',), {'conservation': {'tolerance': 1}})
+    """
+    checks = available_checks() if checks is None else checks
+    path = Path(config) if config is not None else find_config(locations, cwd)
+    if config is not None and not Path(config).is_file():
+        raise ConfigError(f"{config}: no such configuration file")
+    base = load_settings(path, checks) if path is not None else AuditSettings()
+    options = {cid: dict(opts) for cid, opts in base.options.items()}
+    for cid, opts in _parse_sets(sets, checks).items():
+        options.setdefault(cid, {}).update(opts)
+    only_ids = _check_ids(only, checks, "--only")
+    kept = tuple(cid for cid in base.skip if cid not in only_ids)  # --only names win
+    return AuditSettings(
+        skip=tuple(dict.fromkeys((*kept, *_check_ids(skip, checks, "--skip")))),
+        only=only_ids or None,
+        strict=base.strict if strict is None else strict,
+        options=options,
+        source=base.source,
+    )

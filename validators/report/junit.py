@@ -1,0 +1,72 @@
+"""The JUnit XML report: one ``<testsuite>`` per run, one ``<testcase>`` per check.
+
+``classname`` is the run's path and ``name`` the check id. A failed check carries a
+``<failure>``, one that raised an ``<error>``, a skipped one ``<skipped>``; a warning
+passes, with its message in ``<system-out>``. Written with :mod:`xml.etree`, so the
+document is well-formed and escaped whatever the messages hold.
+"""
+
+from __future__ import annotations
+
+import json
+import xml.etree.ElementTree as ET
+
+from .data import _plain
+from .model import AuditReport
+
+__all__ = ["report_junit"]
+
+
+def _counts(statuses: list[str]) -> dict[str, str]:
+    return {
+        "tests": str(len(statuses)),
+        "failures": str(statuses.count("fail")),
+        "errors": str(statuses.count("error")),
+        "skipped": str(statuses.count("skip")),
+    }
+
+
+def report_junit(report: AuditReport) -> str:
+    """The report as a JUnit XML document."""
+    every = [c.status for r in report.runs for c in r.checks]
+    root = ET.Element(
+        "testsuites", {"name": "massarc check", **_counts(every), "time": f"{report.seconds:.3f}"}
+    )
+    for run in report.runs:
+        suite = ET.SubElement(
+            root,
+            "testsuite",
+            {
+                "name": run.path,
+                **_counts([c.status for c in run.checks]),
+                "time": f"{run.seconds:.3f}",
+            },
+        )
+        for c in run.checks:
+            case = ET.SubElement(
+                suite,
+                "testcase",
+                {
+                    "classname": run.path,
+                    "name": c.id,
+                    "time": f"{run.check_seconds.get(c.id, 0.0):.3f}",
+                },
+            )
+            detail = json.dumps(
+                {
+                    "where": c.where.model_dump(exclude_none=True) if c.where else {},
+                    "values": _plain(c.values),
+                    "thresholds": _plain(c.thresholds),
+                },
+                allow_nan=False,
+            )
+            if c.status == "fail":
+                ET.SubElement(case, "failure", {"message": c.message, "type": "fail"}).text = detail
+            elif c.status == "error":
+                ET.SubElement(case, "error", {"message": c.message, "type": "error"}).text = detail
+            elif c.status == "skip":
+                ET.SubElement(case, "skipped", {"message": c.message})
+            elif c.status == "warn":
+                ET.SubElement(case, "system-out").text = f"warning: {c.message}\n{detail}"
+    ET.indent(root)
+    return ET.tostring(root, encoding="unicode", xml_declaration=True) + "\n"

@@ -1,0 +1,272 @@
+"""The runner: every enabled check on every run, from one pass over each run's chunks.
+
+For each run the union of the enabled checks' ``needs`` is built (identical statistic
+requests are shared; the same statistic with different options gets one instance per
+distinct option set), one :func:`~massarc.archive.scan.scan` feeds them all, and each check
+gets a :class:`~massarc.validators.registry.CheckContext` with its merged options. A check
+whose preconditions fail is ``skip`` with the reason; a check (or a statistic it needs)
+that raises becomes ``error`` with the exception's one-line message, and the audit goes on.
+
+>>> from massarc.validators import audit                        # doctest: +SKIP
+>>> report = audit(["runs/sweep"], skip=["steady-state"])       # doctest: +SKIP
+>>> report.status, [c.id for c in report.runs[0].checks]        # doctest: +SKIP
+('pass', ['schema', 'integrity', 'time-order', 'nonnegative', 'conservation', ...])
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import time
+from collections.abc import Callable, Iterable, Mapping
+from typing import Any
+
+from massarc._version import __version__
+from massarc.archive import ArchiveError, Run, open_runs
+from massarc.archive.scan import ScanResult, Statistic, available_statistics, scan
+from massarc.schema.format import ATTRIBUTE_KEY, FORMAT_MAJOR, parse_version
+
+from .config import ConfigError, check_options
+from .registry import Check, CheckContext, available_checks
+from .report.model import AuditReport, RunReport
+from .result import CheckResult, worst
+
+__all__ = ["audit", "open_for_audit"]
+
+Progress = Callable[[int, int], None]
+
+
+def _one_line(exc: BaseException) -> str:
+    lines = str(exc).strip().splitlines()
+    return f"{type(exc).__name__}: {lines[0]}" if lines else type(exc).__name__
+
+
+def open_for_audit(location: str | os.PathLike[str] | Any) -> list[Run]:
+    """Open a run or a collection leniently (invalid metadata is for the ``schema`` check
+    to report) but refuse what is not a massarc run of a known major format version.
+
+    Raises :class:`~massarc.archive.ArchiveError` (including ``NotARunError``).
+    """
+    runs = open_runs(location, lenient=True)
+    for run in runs:
+        if run.header is not None:
+            continue
+        raw = run.group.attrs.get(ATTRIBUTE_KEY)
+        version = raw.get("format_version") if isinstance(raw, dict) else None
+        try:
+            major, minor = parse_version(version)
+        except ValueError:
+            continue  # an unreadable version is a metadata problem: schema reports it
+        if major != FORMAT_MAJOR:
+            raise ArchiveError(
+                f"{run.name}: format_version: expected {FORMAT_MAJOR}.x (this massarc); got "
+                f"{major}.{minor} (upgrade massarc to read it)"
+            )
+    return runs
+
+
+def _select(
+    checks: Iterable[str] | None, skip: Iterable[str], registry: Mapping[str, type[Check]]
+) -> tuple[list[str], set[str]]:
+    """The ids asked for, in order, and those of them to skip."""
+    known = ", ".join(registry) or "(none)"
+    chosen = list(registry) if checks is None else list(dict.fromkeys(checks))
+    skipped = set(skip)
+    for cid in (*chosen, *skip):
+        if cid not in registry:
+            raise ConfigError(f"check id: expected one of {known}; got {cid!r}")
+    return chosen, skipped
+
+
+def _requires(cls: type[Check]) -> tuple[str, ...]:
+    if cls.requires is not None:
+        return tuple(cls.requires)
+    return ("data",) if cls.needs else ()
+
+
+def _precondition(cls: type[Check], run: Run) -> str | None:
+    """Why ``cls`` cannot run on ``run`` (None when it can)."""
+    reqs = _requires(cls)
+    if "metadata" in reqs and run.meta is None:
+        return "no valid metadata (see the schema check)"
+    if "data" in reqs and not run.has_data:
+        return "the run holds no committed snapshots"
+    return None
+
+
+def _key(name: str, options: Mapping[str, Any]) -> tuple[str, str]:
+    return name, json.dumps(dict(options), sort_keys=True, default=repr)
+
+
+class _RunAudit:
+    """The checks of one run: statistics requested, the pass, then each check."""
+
+    def __init__(self, run: Run, classes: list[type[Check]], options: Mapping[str, Any]):
+        self.run = run
+        self.classes = classes
+        self.options = options
+        self.results: dict[str, CheckResult] = {}
+        self.seconds: dict[str, float] = {}
+        self.instances: dict[tuple[str, str], Statistic] = {}
+        self.trouble: dict[tuple[str, str], str] = {}  # statistic key -> why it is unavailable
+        self.wants: dict[str, dict[str, tuple[str, str]]] = {}
+        self.cache: dict[str, Any] = {}  # shared by the checks of this run
+
+    def plan(self) -> list[type[Check]]:
+        runnable = []
+        stats = available_statistics()
+        for cls in self.classes:
+            reason = _precondition(cls, self.run)
+            if reason is not None:
+                self.results[cls.id] = cls().result("skip", f"not run: {reason}")
+                continue
+            runnable.append(cls)
+            self.wants[cls.id] = {}
+            if not self.run.has_data:
+                continue
+            for name, opts in cls.needs.items():
+                key = _key(name, opts)
+                self.wants[cls.id][name] = key
+                if key in self.instances or key in self.trouble:
+                    continue
+                if name not in stats:
+                    self.trouble[key] = f"statistic {name!r} is not registered"
+                    continue
+                try:
+                    self.instances[key] = stats[name](self.run, **dict(opts))
+                except Exception as exc:
+                    self.trouble[key] = f"statistic {name!r}: {_one_line(exc)}"
+        return runnable
+
+    def check(self, cls: type[Check], res: ScanResult | None) -> CheckResult:
+        stats: dict[str, Any] = {}
+        keys = list(self.instances)
+        for name, key in self.wants.get(cls.id, {}).items():
+            if key in self.trouble:
+                return cls().result("error", f"cannot run: {self.trouble[key]}")
+            k = keys.index(key)
+            if res is not None and k in res.errors:
+                return cls().result("error", f"statistic {name!r} failed: {res.errors[k]}")
+            stats[name] = res.ordered[k] if res is not None else None
+        ctx = CheckContext(
+            run=self.run,
+            meta=self.run.meta,
+            stats=stats,
+            options={**cls.options, **self.options.get(cls.id, {})},
+            cache=self.cache,
+            faults=list(res.faults) if res is not None else [],
+        )
+        try:
+            out = cls().run(ctx)
+        except Exception as exc:  # a check's bug or a damaged input it did not expect
+            return cls().result("error", _one_line(exc))
+        if not isinstance(out, CheckResult):
+            return cls().result("error", f"expected a CheckResult; got {type(out).__name__}")
+        if out.id != cls.id:
+            out = out.model_copy(update={"id": cls.id})
+        return out
+
+    def execute(
+        self, strict: bool, workers: int | None, progress: Progress | None
+    ) -> tuple[list[CheckResult], ScanResult | None]:
+        runnable = self.plan()
+        res = None
+        if self.instances:
+            stats = list(self.instances.values())
+            res = scan(self.run, stats, progress=progress, workers=workers)
+        for cls in runnable:
+            started = time.perf_counter()
+            out = self.check(cls, res)
+            self.seconds[cls.id] = time.perf_counter() - started
+            if strict and out.status == "warn":
+                out = out.model_copy(
+                    update={"status": "fail", "message": f"{out.message} [strict: warning fails]"}
+                )
+            self.results[cls.id] = out
+        return [self.results[cls.id] for cls in self.classes], res
+
+
+def audit(
+    runs: Iterable[Run | str | os.PathLike[str]],
+    *,
+    checks: Iterable[str] | None = None,
+    skip: Iterable[str] = (),
+    options: Mapping[str, Mapping[str, Any]] | None = None,
+    strict: bool = False,
+    progress: Progress | None = None,
+    workers: int | None = None,
+    config: str | None = None,
+) -> AuditReport:
+    """Audit runs (``Run`` objects or locations of runs and collections).
+
+    Parameters
+    ----------
+    checks
+        Ids of the checks to run (default: every registered check, in registration order).
+    skip
+        Ids not to run; they are listed in the report as ``skip``.
+    options
+        ``{check id: {option: value}}`` over the checks' defaults.
+    strict
+        Warnings count as failures.
+    progress
+        ``progress(done, total)`` over the chunks of all runs.
+    workers
+        Threads of the single pass (default: the CPUs available).
+    config
+        The configuration file the settings came from (recorded in the report).
+
+    Raises :class:`~massarc.archive.ArchiveError` for a location that is not a readable
+    run, and :class:`~massarc.validators.config.ConfigError` for unknown ids or options.
+    """
+    started = time.perf_counter()
+    registry = available_checks()
+    chosen, skipped = _select(checks, skip, registry)
+    classes = [registry[c] for c in chosen if c not in skipped]
+    opts = check_options(dict(options or {}), registry, "options")
+    opened: list[Run] = []
+    for item in runs:
+        opened.extend([item] if isinstance(item, Run) else open_for_audit(item))
+    totals = [len(r.chunk_refs()) for r in opened]
+    grand = sum(totals)
+    offset = 0
+    reports = []
+    for run, n_chunks in zip(opened, totals, strict=True):
+        run_started = time.perf_counter()
+
+        def tick(done: int, _total: int, base: int = offset) -> None:
+            if progress is not None:
+                progress(base + done, grand)
+
+        worker = _RunAudit(run, classes, opts)
+        ran, res = worker.execute(strict, workers, tick)
+        by_id = {r.id: r for r in ran}
+        results = [
+            by_id[cid]
+            if cid in by_id
+            else registry[cid]().result("skip", "not run: skipped by configuration")
+            for cid in chosen
+        ]
+        offset += n_chunks
+        if progress is not None:
+            progress(offset, grand)
+        reports.append(
+            RunReport(
+                path=run.name,
+                status=worst([r.status for r in results]),
+                checks=results,
+                seconds=time.perf_counter() - run_started,
+                check_seconds=worker.seconds,
+                chunks=n_chunks,
+                chunks_read=res.chunks_read if res else 0,
+                bytes_decoded=res.bytes_decoded if res else 0,
+            )
+        )
+    return AuditReport(
+        runs=reports,
+        status=worst([r.status for r in reports]),
+        massarc_version=__version__,
+        strict=strict,
+        seconds=time.perf_counter() - started,
+        config=config,
+    )
