@@ -24,6 +24,7 @@ from typing import Any
 from massarc._version import __version__
 from massarc.archive import ArchiveError, Run, open_runs
 from massarc.archive.scan import ScanResult, Statistic, available_statistics, scan
+from massarc.archive.store import describe
 from massarc.schema.format import ATTRIBUTE_KEY, FORMAT_MAJOR, parse_version
 
 from .config import ConfigError, check_options
@@ -47,7 +48,14 @@ def open_for_audit(location: str | os.PathLike[str] | Any) -> list[Run]:
 
     Raises :class:`~massarc.archive.ArchiveError` (including ``NotARunError``).
     """
-    runs = open_runs(location, lenient=True)
+    try:
+        runs = open_runs(location, lenient=True)
+    except ArchiveError:
+        raise
+    except Exception as exc:  # e.g. a zarr.json that is not JSON
+        raise ArchiveError(
+            f"{describe(location)}: cannot open as a Zarr v3 group ({_one_line(exc)})"
+        ) from None
     for run in runs:
         if run.header is not None:
             continue

@@ -1,0 +1,128 @@
+"""Configuration: where settings come from, which wins, and errors that name file and key."""
+
+from __future__ import annotations
+
+import pytest
+
+from massarc.validators.config import (
+    ConfigError,
+    find_config,
+    load_settings,
+    resolve_settings,
+)
+
+PYPROJECT = """
+[project]
+name = "demo"
+
+[tool.massarc]
+skip = ["time-order"]
+strict = true
+
+[tool.massarc.checks.conservation]
+tolerance = 2
+"""
+
+
+def test_pyproject_found_upward(tmp_path) -> None:
+    (tmp_path / "pyproject.toml").write_text(PYPROJECT)
+    deep = tmp_path / "a" / "b"
+    deep.mkdir(parents=True)
+    assert find_config([], cwd=deep) == tmp_path / "pyproject.toml"
+    s = resolve_settings(cwd=deep)
+    assert (s.skip, s.strict, s.options) == (
+        ("time-order",),
+        True,
+        {"conservation": {"tolerance": 2}},
+    )
+    assert s.source == str(tmp_path / "pyproject.toml")
+
+
+def test_pyproject_without_table_is_passed_over(tmp_path) -> None:
+    (tmp_path / "pyproject.toml").write_text(PYPROJECT)
+    inner = tmp_path / "inner"
+    inner.mkdir()
+    (inner / "pyproject.toml").write_text('[project]\nname = "other"\n')
+    assert find_config([], cwd=inner) == tmp_path / "pyproject.toml"
+
+
+def test_massarc_toml_beside_runs_wins_and_cli_overrides(tmp_path) -> None:
+    (tmp_path / "pyproject.toml").write_text(PYPROJECT)
+    runs = tmp_path / "data"
+    runs.mkdir()
+    (runs / "massarc.toml").write_text(
+        'skip = ["schema"]\nstrict = false\n[checks.conservation]\ntolerance = 5\n'
+    )
+    run = runs / "r.zarr"
+    s = resolve_settings(locations=[run], cwd=tmp_path)
+    assert s.source == str(runs / "massarc.toml")
+    assert (s.skip, s.strict, s.options["conservation"]) == (("schema",), False, {"tolerance": 5})
+    # the command line overrides the file
+    s = resolve_settings(
+        locations=[run],
+        cwd=tmp_path,
+        strict=True,
+        skip=["integrity"],
+        sets=["conservation.tolerance=1"],
+    )
+    assert (s.skip, s.strict, s.options["conservation"]) == (
+        ("schema", "integrity"),
+        True,
+        {"tolerance": 1},
+    )
+    # --only names a check the file skips: it runs
+    s = resolve_settings(locations=[run], cwd=tmp_path, only=["schema"])
+    assert (s.only, s.skip) == (("schema",), ())
+    # --config names a file explicitly: it wins over both
+    other = tmp_path / "ci.toml"
+    other.write_text("strict = true\n")
+    s = resolve_settings(config=other, locations=[run], cwd=tmp_path)
+    assert (s.source, s.skip, s.strict) == (str(other), (), True)
+
+
+@pytest.mark.parametrize(
+    ("text", "pattern"),
+    [
+        ('skip = ["nope"]', r"massarc\.toml: skip: expected one of schema, .*; got 'nope'"),
+        ("colour = 1", r"massarc\.toml: colour: expected one of checks, skip, strict"),
+        ("strict = 1", r"massarc\.toml: strict: expected true or false; got 1"),
+        ("[checks.nope]\nx = 1", r"checks: expected a check id, one of .*; got 'nope'"),
+        ("[checks.conservation]\ntol = 1", r"checks\.conservation: expected one of tolerance"),
+        (
+            '[checks.conservation]\ntolerance = "a"',
+            r"checks\.conservation\.tolerance: expected a number; got 'a'",
+        ),
+        ('strict = true\nskip = ["a" "b"]', r"massarc\.toml: invalid TOML \(.*line 2"),
+    ],
+)
+def test_bad_files_name_file_and_key(tmp_path, text, pattern) -> None:
+    f = tmp_path / "massarc.toml"
+    f.write_text(text + "\n")
+    with pytest.raises(ConfigError, match=pattern):
+        load_settings(f)
+
+
+def test_pyproject_errors_use_the_tool_key_path(tmp_path) -> None:
+    f = tmp_path / "pyproject.toml"
+    f.write_text("[tool.massarc]\nskp = []\n")
+    with pytest.raises(ConfigError, match=r"pyproject\.toml: tool\.massarc\.skp: expected one of"):
+        load_settings(f)
+
+
+@pytest.mark.parametrize(
+    ("sets", "pattern"),
+    [
+        (["conservation"], r"--set 'conservation': expected ID\.OPTION=VALUE"),
+        (["a.b.c=1"], r"expected ID\.OPTION=VALUE"),
+        (["nope.x=1"], r"--set: expected a check id"),
+        (["conservation.x=1"], r"--set conservation: expected one of tolerance; got 'x'"),
+    ],
+)
+def test_bad_set_options(tmp_path, sets, pattern) -> None:
+    with pytest.raises(ConfigError, match=pattern):
+        resolve_settings(cwd=tmp_path, sets=sets)
+
+
+def test_missing_explicit_config(tmp_path) -> None:
+    with pytest.raises(ConfigError, match=r"no such configuration file"):
+        resolve_settings(config=tmp_path / "absent.toml", cwd=tmp_path)
