@@ -129,6 +129,35 @@ class RunWriter:
         """The committed time axis."""
         return self._times.copy()
 
+    @property
+    def dtype(self) -> np.dtype | None:
+        """The mass dtype (None until the first flush chooses it, unless given)."""
+        return self._dtype
+
+    @property
+    def chunk_snapshots(self) -> int | None:
+        """Snapshots per chunk of ``mass`` (None while the dtype is not chosen yet).
+        Appends of whole chunks starting at a chunk boundary encode every chunk once."""
+        return self._time_chunk()
+
+    def append_events(
+        self,
+        time: np.ndarray,
+        replica: np.ndarray,
+        source: np.ndarray,
+        target: np.ndarray,
+        amount: np.ndarray,
+    ) -> int:
+        """Append moves to the run's event log (subgroup ``events``, sorted by (replica,
+        time); see :mod:`massarc.archive.events`). Returns the number of logged events."""
+        from .events import append_events
+
+        if self._closed:
+            raise ArchiveError(f"{self.name}: writer is closed")
+        return append_events(
+            self._group, self.name, time, replica, source, target, amount, clevel=self._clevel
+        )
+
     def append(
         self,
         times: Sequence[float] | np.ndarray,
@@ -541,5 +570,11 @@ def resume_run(
     )
     nrep = state.replicas + (1 if state.open_replica is not None else 0)
     writer._resize((nrep, state.snapshots))
+    if state.snapshots and MASS in group:
+        # first-snapshot totals of what is committed, so that close() derives total_mass
+        # exactly as an uninterrupted writer would
+        begun = state.replicas + (1 if state.open_replica else 0)
+        for r in range(begun):
+            writer._first_totals[r] = int(np.asarray(group[MASS][r, 0]).sum(dtype=np.int64))
     writer._commit()
     return writer
