@@ -1,0 +1,199 @@
+"""``convert``: any readable format to any writable one, through the archive.
+
+The destination is written under a temporary sibling name (``DST.partial-<random>``) and
+renamed into place only when complete; on any error the temporary is removed, so no
+half-written file is ever left under the destination's name. Inputs are opened read-only.
+
+* ``X -> zarr``: the source streams into the new archive (:func:`.stream.write_source`).
+* ``zarr -> X``: the format's ``write`` exports the archive.
+* ``X -> Y``: through a temporary archive next to the destination, removed afterwards.
+"""
+
+from __future__ import annotations
+
+import os
+import secrets
+import shutil
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ..errors import ArchiveError
+from ..reader import open_run
+from ..store import local_path
+from .registry import Format, Progress, detect_format, get_format
+from .stream import resolve_metadata, write_source
+from .zarr_run import pump_options
+
+__all__ = ["ConvertReport", "convert", "split_options"]
+
+
+@dataclass(frozen=True)
+class ConvertReport:
+    """What a conversion did."""
+
+    source: str
+    destination: str
+    source_format: str
+    destination_format: str
+    replicas: int
+    snapshots: int
+    sites: tuple[int, ...]
+    notes: list[str] = field(default_factory=list)
+
+
+def _fits(key: str, known: Mapping[str, str]) -> bool:
+    return key in known or (key.startswith("attrs.") and "attrs.NAME" in known)
+
+
+def split_options(
+    options: Mapping[str, str], reader: Format, writer: Format
+) -> tuple[dict[str, str], dict[str, str]]:
+    """Route each ``--option``: ``from.KEY``/``to.KEY`` explicitly, else to the side that
+    knows the key (the reader first)."""
+    ropts, wopts = {}, {}
+    for key, value in options.items():
+        if key.startswith("from."):
+            ropts[key[5:]] = value
+        elif key.startswith("to."):
+            wopts[key[3:]] = value
+        elif _fits(key, reader.read_options):
+            ropts[key] = value
+        elif _fits(key, writer.write_options):
+            wopts[key] = value
+        else:
+            known = sorted({*reader.read_options, *writer.write_options})
+            raise ArchiveError(
+                f"unknown option {key!r} for reading {reader.name} or writing {writer.name}; "
+                f"expected one of: {', '.join(known) or 'none'}"
+            )
+    return ropts, wopts
+
+
+def _remove(path: Path) -> None:
+    if path.is_dir() and not path.is_symlink():
+        shutil.rmtree(path, ignore_errors=True)
+    elif path.exists() or path.is_symlink():
+        path.unlink(missing_ok=True)
+
+
+def _place(tmp: Path, dst: Path) -> None:
+    """Rename ``tmp`` to ``dst``, replacing an existing ``dst`` only once ``tmp`` is whole."""
+    if dst.exists():
+        old = dst.with_name(f"{dst.name}.old-{secrets.token_hex(4)}")
+        os.replace(dst, old)
+        os.replace(tmp, dst)
+        _remove(old)
+    else:
+        os.replace(tmp, dst)
+
+
+def convert(
+    src: str | os.PathLike[str],
+    dst: str | os.PathLike[str],
+    *,
+    meta: str | os.PathLike[str] | None = None,
+    overrides: Iterable[str] = (),
+    src_format: str | None = None,
+    dst_format: str | None = None,
+    options: Mapping[str, str] | None = None,
+    overwrite: bool = False,
+    progress: Progress | None = None,
+) -> ConvertReport:
+    """Convert ``src`` to ``dst``.
+
+    >>> convert("run.npz", "run.zarr", meta="meta.toml")    # doctest: +SKIP
+    ConvertReport(source='run.npz', destination='run.zarr', source_format='npz', ...)
+    """
+    overrides = list(overrides)
+    reader = get_format(src_format) if src_format else detect_format(src, role="source")
+    writer = get_format(dst_format) if dst_format else detect_format(dst, role="destination")
+    if not reader.readable:
+        raise ArchiveError(f"format {reader.name} cannot be read")
+    if not writer.writable:
+        raise ArchiveError(f"format {writer.name} cannot be written; it is read-only")
+    ropts, wopts = split_options(options or {}, reader, writer)
+    dst_text = os.fspath(dst)
+    dst_path = local_path(dst_text)
+    src_path = local_path(os.fspath(src))
+    if dst_path is not None and src_path is not None and dst_path.resolve() == src_path.resolve():
+        raise ArchiveError(f"{dst_text}: expected a destination other than the source")
+    if dst_path is None:
+        if writer.name != "zarr":
+            raise ArchiveError(f"{dst_text}: expected a local path for format {writer.name}")
+        return _to_archive(
+            reader, src, dst_text, dst_text, meta, overrides, ropts, wopts, overwrite, progress
+        )
+    if (dst_path.exists() or dst_path.is_symlink()) and not overwrite:
+        raise ArchiveError(f"{dst_text}: already exists (pass --overwrite to replace it)")
+    token = secrets.token_hex(4)
+    tmp = dst_path.with_name(f"{dst_path.name}.partial-{token}")
+    staging = dst_path.with_name(f"{dst_path.name}.partial-{token}.zarr")
+    try:
+        if writer.name == "zarr":
+            report = _to_archive(
+                reader, src, tmp, dst_text, meta, overrides, ropts, wopts, False, progress
+            )
+        else:
+            if reader.name == "zarr" and meta is None and not overrides and not ropts:
+                run = open_run(src)
+            else:
+                _to_archive(
+                    reader, src, staging, dst_text, meta, overrides, ropts, {}, False, progress
+                )
+                run = open_run(staging)
+            notes = writer.write(run, tmp, progress=progress, **wopts)
+            report = ConvertReport(
+                os.fspath(src),
+                dst_text,
+                reader.name,
+                writer.name,
+                run.n_replicas,
+                run.n_snapshots,
+                tuple(run.lattice_shape),
+                list(notes),
+            )
+        _place(tmp, dst_path)
+    except BaseException:
+        _remove(tmp)
+        raise
+    finally:
+        _remove(staging)
+    return report
+
+
+def _to_archive(
+    reader: Format,
+    src: str | os.PathLike[str],
+    location: str | Path,
+    shown: str,
+    meta: str | os.PathLike[str] | None,
+    overrides: list[str],
+    ropts: dict[str, str],
+    wopts: dict[str, str],
+    overwrite: bool,
+    progress: Progress | None,
+) -> ConvertReport:
+    path = local_path(os.fspath(src))
+    with reader.read(path if path is not None else Path(os.fspath(src)), **ropts) as source:
+        run_meta = resolve_metadata(source.hints(), meta, overrides, source.name, source.mapped())
+        w = write_source(
+            source,
+            location,
+            run_meta,
+            overwrite=overwrite,
+            name=shown,
+            progress=progress,
+            **pump_options(wopts),
+        )
+        st = w.state
+        return ConvertReport(
+            os.fspath(src),
+            shown,
+            reader.name,
+            "zarr",
+            st.replicas,
+            st.snapshots,
+            tuple(run_meta.lattice.sites),
+            list(source.notes),
+        )

@@ -1,0 +1,234 @@
+"""NetCDF through xarray (written with the h5netcdf engine).
+
+Layout (write): variable ``mass`` with dimensions ``(replica, time, site)`` or ``(replica,
+time, y, x)``, chunked like the archive; coordinates ``time`` (float64, ``units`` from
+``run.time_units``) and ``replica``; ``inflow``/``outflow`` ``(replica, time)`` when the
+run has them; the global attribute ``massarc_metadata`` holds the metadata as JSON. The
+data go through a dask array over the archive, so the file is written chunk by chunk.
+
+Layout (read): a variable (``--option var=NAME``; default ``mass``, else the only integer
+variable with a time dimension) whose dimensions are a time dimension (``time``, or
+``--option time-dim=``), an optional replica dimension (``replica``, or
+``--option replica-dim=``) and one or two lattice dimensions, in any order. Times come
+from the time coordinate. Metadata: ``massarc_metadata`` and ``--option attrs.NAME=key``
+(variable attributes, then global ones). Slices are read lazily, one block at a time.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any, ClassVar
+
+import numpy as np
+
+from massarc.schema import RunMeta
+from massarc.schema.format import INFLOW, OUTFLOW
+
+from ..errors import DataError
+from ..reader import Run
+from ._arrays import array_blocks, lattice_axes
+from ._options import check_known
+from .hdf5 import HDF5_MAGIC, META_ATTR, json_attr, mapped_attrs
+from .npy import times_for
+from .registry import Block, Events, Format, Progress, Source, register_format
+from .zarr_run import meta_dict
+
+__all__ = ["NetCDFFormat"]
+
+_CLASSIC = (b"CDF\x01", b"CDF\x02", b"CDF\x05")
+
+
+class _Lazy:
+    """Positional slicing of an xarray variable, loading only the slice."""
+
+    def __init__(self, var: Any) -> None:
+        self.var = var
+        self.shape = tuple(int(s) for s in var.shape)
+        self.dtype = np.dtype(var.dtype)
+        self.ndim = len(self.shape)
+
+    def __getitem__(self, key: Any) -> np.ndarray:
+        return np.asarray(self.var[key].values)
+
+
+class NetCDFSource(Source):
+    unit = "snapshots"
+
+    def __init__(self, path: Path, options: dict[str, str]) -> None:
+        import xarray as xr
+
+        self.name = str(path)
+        self.options = options
+        try:
+            self.ds = xr.open_dataset(
+                path, decode_times=False, mask_and_scale=False, decode_cf=False
+            )
+        except (OSError, ValueError) as exc:
+            raise DataError(f"{self.name}: cannot open as NetCDF ({exc})") from None
+        self.time_dim = options.get("time-dim", "time")
+        self.rep_dim = options.get("replica-dim", "replica")
+        self.var_name = self._pick()
+        self.var = self.ds[self.var_name]
+        self.label = f"{self.name}: variable {self.var_name!r}"
+        self.dtype = self.var.dtype if self.var.dtype.kind == "u" else None
+
+    def _pick(self) -> str:
+        want = self.options.get("var")
+        if want is not None or "mass" in self.ds.data_vars:
+            name = want or "mass"
+            if name not in self.ds.variables:
+                have = ", ".join(map(str, self.ds.data_vars)) or "none"
+                raise DataError(
+                    f"{self.name}: no variable {name!r} (variables: {have}); choose "
+                    "one with --option var=NAME"
+                )
+            return name
+        cands = [
+            str(k)
+            for k, v in self.ds.data_vars.items()
+            if self.time_dim in v.dims and v.ndim >= 2 and v.dtype.kind in "iu"
+        ]
+        if len(cands) != 1:
+            have = ", ".join(map(str, self.ds.data_vars)) or "none"
+            raise DataError(
+                f"{self.name}: cannot tell which variable holds the masses "
+                f"(variables: {have}); choose one with --option var=NAME"
+            )
+        return cands[0]
+
+    def _axes(self, meta: RunMeta) -> tuple[str, ...]:
+        dims = [str(d) for d in self.var.dims]
+        if self.time_dim not in dims:
+            raise DataError(
+                f"{self.label}: expected a time dimension {self.time_dim!r}; got "
+                f"dimensions {dims} (name it with --option time-dim=NAME)"
+            )
+        rest = [d for d in dims if d not in (self.time_dim, self.rep_dim)]
+        lat = lattice_axes(meta.lattice.ndim)
+        if len(rest) != len(lat):
+            raise DataError(
+                f"{self.label}: metadata contradicts the data: lattice.sites has "
+                f"{len(lat)} axes but the variable has {len(rest)} lattice dimensions {rest}"
+            )
+        names = dict(zip(rest, lat, strict=True))
+        names[self.time_dim], names[self.rep_dim] = "time", "replica"
+        return tuple(names[d] for d in dims)
+
+    def hints(self) -> dict[str, Any]:
+        data: dict[str, Any] = {}
+        for attrs in (self.ds.attrs, self.var.attrs):
+            if META_ATTR in attrs:
+                data = json_attr(attrs[META_ATTR], f"{self.name}: attribute {META_ATTR}")
+        return data
+
+    def mapped(self) -> dict[str, Any]:
+        def lookup(attr: str) -> Any:
+            for attrs in (self.var.attrs, self.ds.attrs):
+                if attr in attrs:
+                    return attrs[attr]
+            raise KeyError(attr)
+
+        return mapped_attrs(self.options, lookup, self.label)
+
+    def time_length(self, meta: RunMeta) -> int | None:
+        return int(self.ds.sizes[self.time_dim])
+
+    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+        axes = self._axes(meta)
+        n = int(self.ds.sizes[self.time_dim])
+        stored = self.ds[self.time_dim].values if self.time_dim in self.ds.coords else None
+        times = times_for(
+            n, self.options.get("times"), stored, self.name, f"coordinate {self.time_dim!r}"
+        )
+        n_rep = int(self.ds.sizes[self.rep_dim]) if "replica" in axes else 1
+        self.total = n * n_rep
+        series = {}
+        for key in (INFLOW, OUTFLOW):
+            if key in self.ds.data_vars:
+                series[key] = (
+                    self.ds[key]
+                    .transpose(
+                        *[d for d in (self.rep_dim, self.time_dim) if d in self.ds[key].dims]
+                    )
+                    .values
+                )
+        try:
+            yield from array_blocks(_Lazy(self.var), axes, times, chunk, series=series)
+        except (OSError, RuntimeError) as exc:
+            raise DataError(f"{self.label}: cannot read ({exc})") from None
+
+    def close(self) -> None:
+        self.ds.close()
+
+
+@register_format
+class NetCDFFormat(Format):
+    name = "netcdf"
+    suffixes = (".nc", ".nc4", ".netcdf")
+    description = "NetCDF (xarray/h5netcdf): variable mass(replica, time, site), time coordinate"
+    read_options: ClassVar[dict[str, str]] = {
+        "var": "name of the mass variable (default mass)",
+        "time-dim": "name of the time dimension (default time)",
+        "replica-dim": "name of the replica dimension (default replica)",
+        "times": "snapshot times instead of the coordinate: start:step, a list or a file",
+        "attrs.NAME": "map attribute NAME onto a metadata key, e.g. attrs.b=model.b",
+    }
+    write_options: ClassVar[dict[str, str]] = {"compression": "gzip (default) or none"}
+    writable = True
+    #: A NetCDF-4 file is an HDF5 file too; this sniff is the more specific one.
+    specific = 1
+
+    def sniff(self, head: bytes, path: Path) -> bool:
+        if head.startswith(_CLASSIC):
+            return True
+        if not head.startswith(HDF5_MAGIC):
+            return False
+        import h5py
+
+        with h5py.File(path, "r") as f:
+            return "_NCProperties" in f.attrs or any(
+                "DIMENSION_LIST" in obj.attrs for obj in f.values() if hasattr(obj, "attrs")
+            )
+
+    def read(self, path: Path | str, **options: str) -> Source:
+        check_known(options, self.read_options, "reading netcdf")
+        return NetCDFSource(Path(path), dict(options))
+
+    def write(
+        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+    ) -> list[str]:
+        import dask.array as da
+        import xarray as xr
+
+        check_known(options, self.write_options, "writing netcdf")
+        comp = options.get("compression", "gzip")
+        if comp not in ("gzip", "none"):
+            raise DataError(f"option compression: expected gzip or none; got {comp!r}")
+        lattice = run.lattice_shape
+        dims = ("replica", "time", *lattice_axes(len(lattice)))
+        tc = max(1, min(run.chunk_snapshots, run.n_snapshots))
+        chunks = (1, tc, *lattice)
+        mass = da.from_array(run.mass, chunks=chunks)[: run.n_replicas, : run.n_snapshots]
+        data: dict[str, Any] = {"mass": (dims, mass, {"long_name": "mass per site"})}
+        for key in (INFLOW, OUTFLOW):
+            val = run.series(key)
+            if val is not None:
+                data[key] = (("replica", "time"), val)
+        units = run.meta.run.time_units if run.meta is not None else "model time"
+        coords = {
+            "time": ("time", run.times, {"units": units}),
+            "replica": ("replica", np.arange(run.n_replicas, dtype=np.int32)),
+        }
+        attrs = {META_ATTR: json.dumps(meta_dict(run.meta))} if run.meta is not None else {}
+        ds = xr.Dataset(data, coords=coords, attrs=attrs)
+        enc: dict[str, Any] = {"chunksizes": chunks}
+        if comp == "gzip":
+            enc.update(zlib=True, complevel=4)
+        ds.to_netcdf(path, engine="h5netcdf", encoding={"mass": enc})
+        if progress is not None:
+            progress(
+                run.n_replicas * run.n_snapshots, run.n_replicas * run.n_snapshots, "snapshots"
+            )
+        return []

@@ -1,0 +1,135 @@
+"""The massarc archive itself as a format, so that ``convert run.zarr out.txt`` exports and
+``convert a.zarr b.zarr --set ...`` re-encodes (with new metadata, codecs or dtype).
+
+Reading streams the committed chunks replica after replica (one chunk in memory), with the
+archive's metadata as hints, its dtype, ``inflow``/``outflow`` and its event log.
+"""
+
+from __future__ import annotations
+
+import json
+import zipfile
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any, ClassVar
+
+import numpy as np
+
+from massarc.schema import RunMeta
+from massarc.schema.format import ATTRIBUTE_KEY, INFLOW, OUTFLOW
+
+from ..reader import Run, open_run
+from ._options import as_int, check_known
+from .registry import Block, Events, Format, Progress, Source, register_format
+
+__all__ = ["RunSource", "ZarrFormat"]
+
+_EVENT_STEP = 1 << 20
+
+
+def meta_dict(meta: RunMeta) -> dict[str, Any]:
+    """Metadata as the plain dict text formats embed and importers read back."""
+    return meta.model_dump(mode="json", exclude_none=True)
+
+
+class RunSource(Source):
+    """An opened archive as a source."""
+
+    unit = "snapshots"
+
+    def __init__(self, run: Run) -> None:
+        self.run = run
+        self.name = run.name
+        self.dtype = run.dtype if run.has_data else None
+        self.snapshots = run.n_snapshots
+        self.total = run.n_replicas * run.n_snapshots
+        if not run.complete:
+            self.notes = (
+                f"{run.name} is incomplete (its writer did not finish); converting its "
+                f"committed {run.n_replicas} replicas x {run.n_snapshots} snapshots",
+            )
+
+    def hints(self) -> dict[str, Any]:
+        return meta_dict(self.run.meta) if self.run.meta is not None else {}
+
+    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+        run = self.run
+        times = run.times
+        series = {k: run.series(k) for k in (INFLOW, OUTFLOW)}
+        series = {k: v for k, v in series.items() if v is not None}
+        done = 0
+        for b in run.blocks():
+            done += b.stop - b.start
+            yield Block(
+                times[b.start : b.stop],
+                b.mass,
+                replica=b.replica,
+                series={k: v[b.replica, b.start : b.stop] for k, v in series.items()} or None,
+                done=done,
+            )
+        events = run.events
+        if events is not None:
+            total = int(events["time"].shape[0])
+            for lo in range(0, total, _EVENT_STEP):
+                hi = min(lo + _EVENT_STEP, total)
+                part = {k: np.asarray(events[k][lo:hi]) for k in events.array_keys()}
+                yield Events(
+                    part["time"], part["replica"], part["source"], part["target"], part["amount"]
+                )
+
+
+def _is_run_dir(path: Path) -> bool:
+    meta = path / "zarr.json"
+    if not meta.is_file():
+        return False
+    try:
+        attrs = json.loads(meta.read_text(encoding="utf-8")).get("attributes", {})
+    except (OSError, ValueError):
+        return False
+    return isinstance(attrs, dict) and ATTRIBUTE_KEY in attrs
+
+
+@register_format
+class ZarrFormat(Format):
+    name = "zarr"
+    suffixes = (".zarr", ".zarr.zip")
+    description = "massarc run archive (Zarr v3 directory, or a read-only .zip of one)"
+    read_options: ClassVar[dict[str, str]] = {}
+    write_options: ClassVar[dict[str, str]] = {
+        "max-mass": "largest site mass to provide for (chooses the dtype; default: the total)",
+        "clevel": "zstd compression level 1-9 (default 5)",
+    }
+    writable = True
+
+    def sniff(self, head: bytes, path: Path) -> bool:
+        if path.is_dir():
+            return _is_run_dir(path)
+        if head.startswith(b"PK\x03\x04"):
+            with zipfile.ZipFile(path) as zf:
+                return "zarr.json" in zf.namelist()
+        return False
+
+    def read(self, path: Path, **options: str) -> Source:
+        check_known(options, self.read_options, "reading zarr")
+        return RunSource(open_run(path))
+
+    def write(
+        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+    ) -> list[str]:
+        from .stream import write_source
+
+        check_known(options, self.write_options, "writing zarr")
+        source = RunSource(run)
+        write_source(source, path, run.meta, progress=progress, **pump_options(options))
+        return list(source.notes)
+
+
+def pump_options(options: dict[str, str]) -> dict[str, Any]:
+    """``max-mass`` and ``clevel`` as keyword arguments of :func:`.stream.write_source`."""
+    out: dict[str, Any] = {}
+    if "max-mass" in options:
+        out["max_mass"] = as_int(options["max-mass"], "max-mass", minimum=0)
+    if "clevel" in options:
+        level = as_int(options["clevel"], "clevel", minimum=1)
+        out["clevel"] = min(level, 9)
+    return out
