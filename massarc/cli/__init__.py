@@ -16,9 +16,9 @@ def cli() -> None:
 
 
 def _register() -> None:
-    from . import check, info, sample, schema_cmd
+    from . import check, convert, info, ingest, sample, schema_cmd
 
-    for module in (info, schema_cmd, sample, check):
+    for module in (info, schema_cmd, sample, check, convert, ingest):
         cli.add_command(module.command)
 
 

@@ -1,0 +1,169 @@
+"""``massarc convert``: between run archives and other formats, either way.
+
+The command parses options and reports; the work is :func:`massarc.archive.formats.convert`.
+"""
+
+from __future__ import annotations
+
+import sys
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import Any
+
+import click
+
+from massarc.archive.formats import convert, describe_formats
+from massarc.archive.formats.registry import Progress
+
+from ._common import bad_input, die
+
+__all__ = ["command", "key_values", "metadata_options", "transfer_progress"]
+
+
+@contextmanager
+def transfer_progress(label: str, quiet: bool) -> Iterator[Progress]:
+    """A rich progress bar on stderr (only on a terminal and not quiet), created on the
+    first report, so that the total and unit (bytes or snapshots) can come late."""
+    if quiet or not sys.stderr.isatty():
+        yield lambda done, total, unit: None
+        return
+    from rich.console import Console
+    from rich.progress import (
+        BarColumn,
+        DownloadColumn,
+        MofNCompleteColumn,
+        Progress,
+        TextColumn,
+        TimeRemainingColumn,
+    )
+
+    state: dict[str, object] = {}
+
+    def report(done: int, total: int | None, unit: str) -> None:
+        if "bar" not in state:
+            amount = DownloadColumn() if unit == "bytes" else MofNCompleteColumn()
+            bar = Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                amount,
+                TimeRemainingColumn(),
+                console=Console(stderr=True),
+                transient=True,
+            )
+            bar.start()
+            state["bar"], state["task"] = bar, bar.add_task(label, total=total)
+        bar = state["bar"]
+        bar.update(state["task"], completed=done, total=total)  # type: ignore[attr-defined]
+
+    try:
+        yield report
+    finally:
+        if "bar" in state:
+            state["bar"].stop()  # type: ignore[attr-defined]
+
+
+def key_values(items: tuple[str, ...], command: str) -> dict[str, str]:
+    """``--option key=value`` strings as a dict; a malformed one exits with status 2."""
+    out = {}
+    for item in items:
+        key, sep, value = item.partition("=")
+        if not sep or not key.strip():
+            die(command, f"--option {item!r}: expected KEY=VALUE")
+        out[key.strip()] = value.strip()
+    return out
+
+
+def metadata_options(func: Any) -> Any:
+    """The ``--meta FILE`` and ``--set KEY.PATH=VALUE`` options convert and ingest share."""
+    func = click.option(
+        "--set",
+        "overrides",
+        multiple=True,
+        metavar="KEY.PATH=VALUE",
+        help="Override one metadata entry (repeatable).",
+    )(func)
+    return click.option("--meta", "meta", metavar="FILE", help="Metadata file (TOML or JSON).")(
+        func
+    )
+
+
+def _list_formats() -> None:
+    rows = describe_formats()
+    width = max(len(r["name"]) for r in rows)
+    for r in rows:
+        suffixes = " ".join(r["suffixes"]) or "-"
+        click.echo(f"{r['name']:<{width}}  {r['modes']:<10}  {suffixes:<22}  {r['description']}")
+        for side in ("read_options", "write_options"):
+            for key, text in r[side].items():
+                click.echo(f"{'':<{width}}    --option {key}=...  ({side.split('_')[0]}) {text}")
+    click.echo(
+        "\nThe format is found from the content, then the name; choose it with "
+        "--from NAME / --to NAME."
+    )
+
+
+@click.command("convert")
+@click.argument("src", required=False)
+@click.argument("dst", required=False)
+@metadata_options
+@click.option("--from", "src_format", metavar="NAME", help="Format of SRC (skip detection).")
+@click.option("--to", "dst_format", metavar="NAME", help="Format of DST (skip detection).")
+@click.option(
+    "--option",
+    "options",
+    multiple=True,
+    metavar="KEY=VALUE",
+    help="A format option (repeatable; from.KEY / to.KEY pick the side).",
+)
+@click.option("--overwrite", is_flag=True, help="Replace an existing DST.")
+@click.option("--quiet", "-q", is_flag=True, help="No progress bar, no notes.")
+@click.option("--list-formats", is_flag=True, help="List the known formats and exit.")
+def command(
+    src: str | None,
+    dst: str | None,
+    meta: str | None,
+    overrides: tuple[str, ...],
+    src_format: str | None,
+    dst_format: str | None,
+    options: tuple[str, ...],
+    overwrite: bool,
+    quiet: bool,
+    list_formats: bool,
+) -> None:
+    """Convert SRC to DST: into a run archive (run.zarr), out of one, or between formats.
+
+    \b
+    massarc convert run.npz run.zarr --meta meta.toml
+    massarc convert run.zarr run.txt
+    massarc convert traj.h5 run.zarr --meta meta.toml --option mass=/traj/mass
+    """
+    if list_formats:
+        with bad_input("convert"):
+            _list_formats()
+        return
+    if src is None or dst is None:
+        die("convert", "expected SRC and DST (or --list-formats)")
+    opts = key_values(options, "convert")
+    with bad_input("convert"), transfer_progress(f"convert {src}", quiet) as progress:
+        try:
+            report = convert(
+                src,
+                dst,
+                meta=meta,
+                overrides=overrides,
+                src_format=src_format,
+                dst_format=dst_format,
+                options=opts,
+                overwrite=overwrite,
+                progress=progress,
+            )
+        except (IsADirectoryError, NotADirectoryError, OSError) as exc:
+            die("convert", f"{exc.filename or src}: {exc.strerror or exc}")
+    if not quiet:
+        for note in report.notes:
+            click.echo(f"massarc convert: note: {note}", err=True)
+        sites = " x ".join(map(str, report.sites))
+        click.echo(
+            f"{report.destination}: {report.replicas} replicas x {report.snapshots} snapshots "
+            f"x {sites} sites ({report.source_format} -> {report.destination_format})"
+        )
