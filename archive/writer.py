@@ -331,6 +331,8 @@ class RunWriter:
             extends_time = replica is None or (replica == 0 and self._grows_time())
             self._validate(t, m, first_index, rep_offset, extends_time)
         self._record_first_totals(m, first_index, rep_offset)
+        if self._dtype is None:
+            self._choose_dtype(m)
         self._buf_replica = replica
         self._buf_mass.append(m)
         self._buf_time.append(t)
@@ -413,24 +415,32 @@ class RunWriter:
                     f"but replica {rep0 + r}, snapshot 0 holds {int(tot)}"
                 )
 
+    def _choose_dtype(self, data: np.ndarray) -> None:
+        """Pick the smallest dtype for the run from the first data (see :func:`create_run`).
+
+        Done at the first append, so that chunk boundaries (and the commits there) are
+        known from the start."""
+        if self._max_mass is not None:
+            top = self._max_mass
+        elif self.meta.run.total_mass is not None:
+            top = self.meta.run.total_mass
+        elif self.meta.lattice.closed and self._first_totals:
+            top = max(self._first_totals.values())
+        else:
+            top = np.iinfo(np.uint32).max - 1
+        dtype = mass_dtype(int(top))
+        if self.strict and data.size and int(data.max()) >= sentinel(dtype):
+            raise DataError(
+                f"{self.name}: mass {int(data.max())} does not fit {dtype}; pass max_mass"
+            )
+        self._dtype = dtype
+
     def _ensure_arrays(self, data: np.ndarray, series: dict[str, np.ndarray]) -> None:
         g = self._group
         if MASS not in g:
             if self._dtype is None:
-                if self._max_mass is not None:
-                    top = self._max_mass
-                elif self.meta.run.total_mass is not None:
-                    top = self.meta.run.total_mass
-                elif self.meta.lattice.closed and self._first_totals:
-                    top = max(self._first_totals.values())
-                else:
-                    top = np.iinfo(np.uint32).max - 1
-                self._dtype = mass_dtype(int(top))
-                if self.strict and data.size and int(data.max()) >= sentinel(self._dtype):
-                    raise DataError(
-                        f"{self.name}: mass {int(data.max())} does not fit {self._dtype}; "
-                        "pass max_mass"
-                    )
+                self._choose_dtype(data)
+            assert self._dtype is not None
             tc = chunk_snapshots(self._lattice, self._dtype, self._hint)
             g.create_array(
                 MASS,

@@ -206,3 +206,14 @@ def test_existing_archive_is_not_overwritten(tmp_path: Path) -> None:
     write(tmp_path / "r.zarr", make_meta(sites=(6,)), multinomial_run(1, 3, (6,), mass=4))
     with pytest.raises(ArchiveError, match="already exists"):
         create_run(tmp_path / "r.zarr", make_meta(sites=(6,)))
+
+
+def test_commits_at_chunk_boundaries_without_an_explicit_dtype(tmp_path: Path) -> None:
+    data = multinomial_run(2, 50, (8,), mass=10)
+    w = create_run(tmp_path / "r.zarr", make_meta(sites=(8,)), snapshots_hint=10)
+    for s in range(0, 35, 5):
+        w.append(np.arange(s, s + 5, dtype=float), data[:, s : s + 5])
+    # 35 snapshots appended, chunks of 10: three whole chunks are committed already
+    assert open_run(tmp_path / "r.zarr").n_snapshots == 30
+    w.close()
+    assert open_run(tmp_path / "r.zarr").n_snapshots == 35
