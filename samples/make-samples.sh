@@ -7,9 +7,10 @@ BIN=$(cd "${1:-.venv/bin}" && pwd)
 cd "$(dirname "$0")"
 
 # 1. Depot ring, honestly stationary: started from an exact steady-state sample and run
-#    for three relaxation times (asymmetric ZRP: L^2 = 4096 hours).
+#    for six relaxation times (asymmetric ZRP: L^2 = 4096 hours), a snapshot every 2 hours
+#    so that single hops (and the seam of the ring) can be resolved.
 "$BIN/massarc" sample depot-ring.zarr --meta depot-ring.toml --density 1.5 \
-  --replicas 4 --seed 1 --t-max 12288 --snapshots 3072 --initial steady-state \
+  --replicas 4 --seed 1 --t-max 24576 --snapshots 12288 --initial steady-state \
   --overwrite --quiet
 
 # 2. Dune strip, coarsening from an even spread of sand, declared transient.
