@@ -1,0 +1,205 @@
+"""The ``stationary-law`` check: the occupation law in the stationary window is the exact one.
+
+For a ZRP (any declared u(k)) on a ring, a torus, or with symmetric moves between walls,
+the steady state at fixed total mass M on N sites is the canonical product measure, whose
+single-site law P(m) = f(m) Z(N-1, M-m) / Z(N, M) is exact at finite size
+(:func:`massarc.schema.laws.canonical_site_law`).
+
+H0: the time-averaged single-site occupation law over the stationary window (all sites,
+snapshots and replicas pooled) is P. Statistic: Pearson's X^2 on the pooled counts with
+merged bins, divided by the mean design effect estimated by batch means (first-order
+Rao-Scott correction, :mod:`massarc.validators.law_fit`); p-value from F(k-1, (k-1)(m-1))
+for k bins and m batches. Batches are whole replicas when there are at least
+``min_batches`` of them, otherwise runs of consecutive histogram blocks of each replica,
+each at least ``batch_factor`` times the window's statistical inefficiency long. Replicas
+with different total masses are compared with their own laws.
+
+``fail`` when p < ``alpha``; ``warn`` when the effective sample n / design effect is below
+``min_effective``, or too few batches or bins are left to judge; ``skip`` for models
+without an exact law (CMAM, custom), boundaries under which it does not hold (asymmetric
+moves with walls, open axes), runs that declare a transient regime, runs whose stationary
+window was not found, and runs whose replicas do not keep their total mass.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, ClassVar
+
+import numpy as np
+
+from massarc.schema import ZRPModel
+from massarc.schema.laws import canonical_site_law
+
+from ..law_fit import LawFit, fit_law
+from ..registry import Check, CheckContext, register_check
+from ..result import CheckResult
+from ..window import stationary_window
+
+__all__ = ["StationaryLawCheck"]
+
+#: Largest number of distinct total masses among replicas (one exact law each).
+_MAX_MASSES = 64
+
+
+def _why_no_law(meta: Any) -> str | None:
+    """Why the exact law does not apply to the declared model and lattice (None: it does)."""
+    if not isinstance(meta.model, ZRPModel):
+        return f"no exact stationary law is known for family {meta.model.family}"
+    bounds = meta.lattice.boundary
+    if "open" in bounds:
+        return "open boundaries: the canonical law does not hold"
+    if meta.model.drift == "asymmetric" and "reflecting" in bounds:
+        return "asymmetric moves between walls: the steady state is not homogeneous"
+    if meta.run.regime == "transient":
+        return "the run declares a transient regime"
+    return None
+
+
+def _label(group: tuple[int, int], top: int) -> str:
+    a, b = group
+    if b >= top:
+        return f"m >= {a}"
+    return f"m = {a}" if a == b else f"m = {a}..{b}"
+
+
+@register_check
+class StationaryLawCheck(Check):
+    """Exact finite-size occupation law of the ZRP against the stationary window."""
+
+    id = "stationary-law"
+    description = "single-site occupation law in the stationary window matches the exact ZRP law"
+    needs: ClassVar = {"histogram": {}, "snapshots": {}}
+    options: ClassVar = {
+        "alpha": 1e-3,
+        "min_expected": 5.0,
+        "max_bins": 40,
+        "min_batches": 16,
+        "batch_factor": 50.0,
+        "min_effective": 1000.0,
+    }
+
+    def _opt(self, ctx: CheckContext, key: str) -> float:
+        return float(ctx.options.get(key, self.options[key]))
+
+    def run(self, ctx: CheckContext) -> CheckResult:
+        meta = ctx.meta
+        if meta is None:
+            return self.result("skip", "no valid metadata: the declared model is unknown")
+        why = _why_no_law(meta)
+        if why:
+            return self.result("skip", why)
+        window = stationary_window(ctx)
+        if not window.found or window.start is None:
+            return self.result("skip", f"no stationary window: {window.reason}")
+        hist, snaps = ctx.stats["histogram"], ctx.stats["snapshots"]
+        start = int(window.start)
+        totals = np.asarray(snaps.total)[:, start:]
+        valid = np.asarray(snaps.valid)[:, start:]
+        masses: dict[int, int] = {}
+        for r in range(totals.shape[0]):
+            seen = np.unique(totals[r][valid[r]])
+            if len(seen) > 1:
+                return self.result(
+                    "skip",
+                    f"replica {r} does not keep its total mass in the window "
+                    f"({int(seen.min())}..{int(seen.max())}): see the conservation check",
+                    where={"replica": r},
+                )
+            if len(seen) == 1:
+                masses[r] = int(seen[0])
+        if len(set(masses.values())) > _MAX_MASSES:
+            return self.result(
+                "skip", f"replicas hold {len(set(masses.values()))} different total masses"
+            )
+        batches, probs = self._batches(ctx, hist, masses, start, window.stride)
+        if not batches:
+            return self.result("skip", "no complete histogram block inside the window")
+        fit = fit_law(
+            np.array(batches),
+            np.array(probs),
+            min_expected=self._opt(ctx, "min_expected"),
+            max_bins=int(self._opt(ctx, "max_bins")),
+        )
+        return self._verdict(ctx, fit, hist.top, start, sorted(set(masses.values())))
+
+    def _batches(
+        self, ctx: CheckContext, hist: Any, masses: dict[int, int], start: int, stride: int
+    ) -> tuple[list[np.ndarray], list[np.ndarray]]:
+        """Batch counts and their expected laws (bins 0..top-1 exact, top: >= top)."""
+        assert ctx.meta is not None and isinstance(ctx.meta.model, ZRPModel)
+        sites = ctx.meta.lattice.volume
+        top = hist.top
+        edges = np.asarray(hist.edges)
+        inside = np.flatnonzero(edges[:-1] >= start)
+        laws: dict[int, np.ndarray] = {}
+        for mass in set(masses.values()):
+            law = np.zeros(top + 1)
+            exact = canonical_site_law(ctx.meta.model, sites, mass)
+            law[: min(top, mass + 1)] = exact[:top]
+            law[top] = exact[top:].sum()
+            laws[mass] = law
+        reps = sorted(masses)
+        target = max(1, math.ceil(self._opt(ctx, "min_batches") / max(len(reps), 1)))
+        span = int(edges[-1]) - (int(edges[inside[0]]) if len(inside) else 0)
+        longest = max(1, int(span // max(self._opt(ctx, "batch_factor") * stride, 1.0)))
+        per_replica = max(1, min(target, longest, len(inside)))
+        batches, probs = [], []
+        for r in reps:
+            ok = inside[np.asarray(hist.valid)[r, inside]]
+            for part in np.array_split(ok, per_replica):
+                if len(part):
+                    batches.append(np.asarray(hist.counts)[r, part].sum(axis=0))
+                    probs.append(laws[masses[r]])
+        return batches, probs
+
+    def _verdict(
+        self, ctx: CheckContext, fit: LawFit, top: int, start: int, masses: list[int]
+    ) -> CheckResult:
+        alpha = self._opt(ctx, "alpha")
+        min_eff = self._opt(ctx, "min_effective")
+        thresholds = {"alpha": alpha, "min_effective": min_eff}
+        values: dict[str, Any] = {
+            "p_value": None if math.isnan(fit.p_value) else fit.p_value,
+            "chi2": None if math.isnan(fit.chi2) else fit.chi2,
+            "dof": fit.dof,
+            "design_effect": None if math.isnan(fit.design_effect) else fit.design_effect,
+            "effective_n": None if math.isnan(fit.effective_n) else fit.effective_n,
+            "n": fit.n,
+            "batches": fit.batches,
+            "window_start": start,
+            "total_mass": masses[0] if len(masses) == 1 else masses,
+        }
+        if fit.dof >= 1:
+            j, obs, exp = fit.largest_deviation()
+            values["largest_deviation"] = {
+                "bin": _label(fit.groups[j], top),
+                "observed": obs,
+                "expected": exp,
+            }
+        if math.isnan(fit.p_value):
+            return self.result(
+                "warn",
+                f"too little data to judge the law ({fit.batches} batches, {fit.dof + 1} bins "
+                f"after merging, from snapshot {start})",
+                values=values,
+                thresholds=thresholds,
+            )
+        dev = values["largest_deviation"]
+        detail = (
+            f"chi2 {fit.chi2:.4g} on {fit.dof} dof, design effect {fit.design_effect:.3g}, "
+            f"effective n {fit.effective_n:.4g}, p = {fit.p_value:.2g}; largest deviation at "
+            f"{dev['bin']}: observed {dev['observed']:.4g}, expected {dev['expected']:.4g}"
+        )
+        if fit.p_value < alpha:
+            status, head = "fail", "occupation law differs from the exact law of the declared rates"
+        elif fit.effective_n < min_eff:
+            status, head = "warn", f"effective sample below {min_eff:g}, too small to judge"
+        else:
+            status, head = "pass", "occupation law agrees with the exact law"
+        return self.result(
+            status,
+            f"{head} (from snapshot {start}: {detail})",
+            values=values,
+            thresholds=thresholds,
+        )
