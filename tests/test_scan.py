@@ -188,3 +188,20 @@ def test_chunks_in_flight_are_bounded_and_progress_is_reported(tmp_path) -> None
     assert 1 <= res.results["test-concurrency"] <= 3
     n = len(run.chunk_refs())
     assert calls == [(i, n) for i in range(1, n + 1)]
+
+
+def test_snapshots_and_histogram_share_one_loop_per_chunk(tmp_path, monkeypatch) -> None:
+    from massarc.archive.stats import _kernels
+
+    calls = []
+    real = _kernels.reduce_rows
+
+    def counting(x, start, plan, **kw):
+        calls.append(start)
+        return real(x, start, plan, **kw)
+
+    monkeypatch.setattr(_kernels, "reduce_rows", counting)
+    run = open_run(write_run(tmp_path / "r.zarr", replicas=2, snapshots=30, chunk=10))
+    res = scan(run, [SnapshotStatistic(run), HistogramStatistic(run, bins=16)], workers=2)
+    assert len(calls) == len(run.chunk_refs()) == 6
+    assert res.results["histogram"].counts.sum() == 2 * 30 * 16
