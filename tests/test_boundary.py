@@ -132,3 +132,11 @@ def test_short_axes_are_not_tested_and_a_condensed_start_is_noted():
     assert result.status != "fail"
     assert "condensed start" in result.message
     assert result.values["axes"][0]["p_activity"] is None
+
+
+def test_an_open_axis_is_tested_for_a_ring_like_a_wall():
+    # mass enters at site 0 and leaves from the last site through reservoirs, never
+    # directly between them: an open seam must not behave like a bond either
+    run = sampled(meta("zrp", (32,), ["periodic"]), seed=6)
+    result = check(redeclare(run, ["open"]))
+    assert result.status == "fail" and "declared open" in result.message
