@@ -12,7 +12,9 @@ order; any other order is refused with a clear message.
 
 from __future__ import annotations
 
+import contextlib
 import math
+import mmap
 from collections.abc import Iterator, Mapping
 from typing import Any, BinaryIO
 
@@ -24,7 +26,7 @@ from .registry import Block
 __all__ = ["BLOCK_BYTES", "SequentialArray", "array_blocks", "lattice_axes"]
 
 #: Bytes of source data read per block (a whole number of archive chunks when possible).
-BLOCK_BYTES = 32 * 1024 * 1024
+BLOCK_BYTES = 64 * 1024 * 1024
 
 
 def lattice_axes(ndim: int) -> tuple[str, ...]:
@@ -81,6 +83,16 @@ class SequentialArray:
         return ",".join(self.axes) if self.axes else str(list(self.shape))
 
 
+def _release(arr: Any) -> None:
+    """Let the kernel drop the pages of a memory-mapped input that were read so far, so
+    that converting a file larger than memory keeps the resident set bounded (a later
+    access simply reads the file again)."""
+    mm = getattr(arr, "_mmap", None)
+    if mm is not None and hasattr(mm, "madvise") and hasattr(mmap, "MADV_DONTNEED"):
+        with contextlib.suppress(OSError, ValueError):  # best effort
+            mm.madvise(mmap.MADV_DONTNEED)
+
+
 def _step(chunk: int, per_snapshot: int) -> int:
     """Snapshots per block: whole chunks of about BLOCK_BYTES, at least one chunk."""
     chunks = max(1, BLOCK_BYTES // max(1, chunk * per_snapshot))
@@ -125,6 +137,7 @@ def array_blocks(
                     series={k: v[r, a:b] for k, v in ser.items()} or None,
                     done=r * n_time + b,
                 )
+                _release(arr)
         return
     step = _step(chunk, per_snapshot * n_rep) if n_rep else chunk
     perm = [rep_ax, time_ax] + [axes.index(a) for a in lat]
@@ -140,3 +153,4 @@ def array_blocks(
             series={k: v[:, a:b] for k, v in ser.items()} or None,
             done=n_rep * b,
         )
+        _release(arr)

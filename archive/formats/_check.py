@@ -40,6 +40,7 @@ class BlockChecker:
         self.limit = limit
         self._ref = [np.asarray(ref_times, np.float64)] if ref_times is not None else []
         self._ref_len = 0 if ref_times is None else len(ref_times)
+        self._archived = self._ref_len  # reference times that come from a resumed archive
         self.counts: dict[int, int] = {}
         self.current: int | None = None
         self.first_replica = first_replica
@@ -150,10 +151,15 @@ class BlockChecker:
             diff = want != t[:known]
             if diff.any():
                 i = int(np.argmax(diff))
+                where = f"{self._prefix(block, i)}replica {rep}, snapshot {start + i}"
+                if start + i < self._archived:
+                    raise DataError(
+                        f"{where} has time {float(t[i])} in the input but {float(want[i])} in "
+                        "the archive being resumed; is this the same run?"
+                    )
                 raise DataError(
-                    f"{self._prefix(block, i)}replica {rep}, snapshot {start + i}: time "
-                    f"{float(t[i])} differs from replica 0's {float(want[i])}; every replica "
-                    "must repeat the times of replica 0"
+                    f"{where}: time {float(t[i])} differs from replica 0's {float(want[i])}; "
+                    "every replica must repeat the times of replica 0"
                 )
         if known < len(t):
             if (rep != 0 and self.lockstep is None) or not self.growable:

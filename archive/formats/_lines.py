@@ -5,7 +5,9 @@ text formats share.
 pipe (``live``) it reports whether more input is immediately available, so a live
 importer can commit whenever the producer is idle. A final line without a newline is
 handed over as a line for files, and kept back (``partial``) for live input: a producer
-killed mid-line must not leave half a snapshot in the archive.
+killed mid-line must not leave half a snapshot in the archive. Input counts as idle when
+nothing more arrives within ``grace`` seconds (50 ms), so that a producer printing
+steadily is not interrupted by a commit after every pipe buffer.
 
 :class:`LineParser` turns batches into :class:`Rows` of one replica each. Its grammar:
 ``#`` starts a comment; ``# massarc-meta: {json}`` (before the first data line) carries
@@ -58,7 +60,13 @@ class LineReader:
     """Batches ``(buffer of complete lines, number of its first line, idle)``."""
 
     def __init__(
-        self, stream: BinaryIO | int, name: str, *, live: bool = False, batch: int = BATCH_BYTES
+        self,
+        stream: BinaryIO | int,
+        name: str,
+        *,
+        live: bool = False,
+        batch: int = BATCH_BYTES,
+        grace: float = 0.05,
     ) -> None:
         self.stream = stream
         self.name = name
@@ -70,17 +78,35 @@ class LineReader:
         self.bytes_done = 0
         self.partial: bytes = b""
         self.line = 1  # number of the next line (set it when the stream starts mid-file)
+        self.grace = grace
+        self._eof = False
+
+    def _ready(self, timeout: float) -> bool:
+        ready, _, _ = select.select([self.fd], [], [], timeout)
+        return bool(ready)
 
     def _read(self) -> bytes:
-        if self.fd is not None and self.live:
-            return os.read(self.fd, self.batch)
-        return self.stream.read(self.batch)  # type: ignore[union-attr]
+        if self.fd is None or not self.live:
+            return self.stream.read(self.batch)  # type: ignore[union-attr]
+        if self._eof:
+            return b""
+        parts = [os.read(self.fd, self.batch)]
+        size = len(parts[0])
+        # a pipe hands over at most its buffer per read: gather what is already there
+        while size and size < self.batch and self._ready(0):
+            more = os.read(self.fd, self.batch - size)
+            if not more:
+                self._eof = True
+                break
+            parts.append(more)
+            size += len(more)
+        return b"".join(parts)
 
     def _idle(self) -> bool:
-        if not self.live or self.fd is None:
+        """No further input within ``grace`` seconds (live input only)."""
+        if not self.live or self.fd is None or self._eof:
             return False
-        ready, _, _ = select.select([self.fd], [], [], 0)
-        return not ready
+        return not self._ready(self.grace)
 
     def __iter__(self) -> Iterator[tuple[bytes, int, bool]]:
         carry = b""

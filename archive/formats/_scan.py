@@ -164,6 +164,11 @@ def _is_int(tok: bytes) -> bool:
     return body.isdigit()
 
 
+def _short(ints: list[bytes]) -> bool:
+    """Every integer token has at most MAX_DIGITS digits."""
+    return max(map(len, ints)) <= MAX_DIGITS or all(len(t.lstrip(b"-")) <= MAX_DIGITS for t in ints)
+
+
 def _fields(text: bytes, base: int, comma: bool) -> list[tuple[int, bytes]]:
     """(byte offset, token) of every token of a data line (the slow, exact path)."""
     out = []
@@ -221,8 +226,12 @@ def _scan_python(buf: bytes, comma: bool, lead: int) -> Scanned:
             ok = (
                 len(toks) >= lead
                 and all(toks[:lead])
-                and (joined.isdigit() if b"-" not in joined else all(map(_is_int, ints)))
-                and (not ints or (min(map(len, ints)) > 0 and max(map(len, ints)) <= MAX_DIGITS))
+                and (
+                    not joined or joined.isdigit()
+                    if b"-" not in joined
+                    else all(map(_is_int, ints))
+                )
+                and (not ints or (min(map(len, ints)) > 0 and _short(ints)))
             )
             if not ok:
                 code, at = _bad_field(_fields(text, pos, comma), lead)

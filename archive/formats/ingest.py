@@ -142,8 +142,7 @@ def ingest(
             raise
         if pump is None or writer is None:
             raise DataError(f"{label}: expected at least one snapshot; found none")
-        pump.finish()
-        pump.commit()
+        pump.finish(whole=False)
         st = writer.state
         if reader.partial:
             raise DataError(
