@@ -207,7 +207,9 @@ class RunWriter:
         if not self._buf_len:
             return
         rep = self._buf_replica
-        data = np.concatenate(self._buf_mass, axis=1)
+        # one buffered block (an importer appending whole chunks) is written without a copy
+        bufs = self._buf_mass
+        data = bufs[0] if len(bufs) == 1 else np.concatenate(bufs, axis=1)
         t = np.concatenate(self._buf_time)
         series = {k: np.concatenate(v, axis=1) for k, v in self._buf_series.items() if v}
         self._buf_mass, self._buf_time = [], []
