@@ -25,7 +25,8 @@ Two estimators of g are offered:
     Comput. 3, 26, 2007). This is the estimator of the 2016 paper.
 
 For long series the candidates lie on a grid of about ``grid`` starts, then the
-neighbourhood of the best grid point is searched at full resolution.
+neighbourhood of the best grid point (its two neighbours) is searched on a grid four
+times finer: about 1.25 ``grid`` evaluations in all, each an FFT of the tail.
 
 >>> import numpy as np
 >>> rng = np.random.default_rng(3)
@@ -163,7 +164,8 @@ def detect_equilibration(
         pos = int(np.searchsorted(coarse, best))
         lo = int(coarse[max(pos - 1, 0)])
         hi = int(coarse[min(pos + 1, coarse.size - 1)])
-        starts = np.unique(np.concatenate([coarse, np.arange(lo, hi + 1)]))
+        fine = np.linspace(lo, hi, max(grid // 4, 3)).round().astype(int)
+        starts = np.unique(np.concatenate([coarse, fine]))
     curve = np.array([n_eff(int(t)) for t in starts])
     k = int(np.argmax(curve))
     t0 = int(starts[k])

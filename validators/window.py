@@ -1,0 +1,320 @@
+"""The stationary window of a run: where it starts, how much it holds, whether it drifts.
+
+Computed once per run from the ``snapshots`` statistic and shared by the checks that need
+it (``steady-state`` judges it, ``stationary-law`` tests the stationary law inside it)::
+
+    window = stationary_window(ctx)
+    if window.found:
+        first = window.start              # snapshot index where the window begins
+        factor = window.efficiency        # effective samples per (replica, snapshot) draw
+
+Observables. Per snapshot, the largest mass (``maximum``), the sum of m^2 (``sum_sq``)
+and the number of occupied sites (``occupied``): the first two grow during coarsening,
+the last one falls, and all three are stationary in the steady state.
+
+Start. The equilibration detector (Chodera 2016, :mod:`.diagnostics.equilibration`) is run
+on the replica mean of each observable: a transient common to all replicas keeps its size
+in the mean while the noise shrinks by sqrt(replicas), and for independent replicas the
+mean has the same autocorrelation as each of them. Starts are searched in the first
+``max_start_fraction`` of the run only (the detector's N_eff can peak by chance on a short
+tail); series longer than ``detect_length`` snapshots are searched on block means
+(the start is then known to a block). The window starts at the latest start over the
+observables. On a stationary run
+the N_eff curve is flat within its noise and the detected start may fall anywhere in the
+first half: that costs effective samples, never correctness; a transient is cut where the
+effective sample size is best, which may leave its faint end in the window.
+
+Inside the window, per observable and over (replica, snapshot): Sokal's g and tau_int,
+rank-normalised split R-hat, bulk and tail ESS (Vehtari et al. 2021), and the replica
+trend test (:mod:`.diagnostics.trend`); over the whole run, the same trend test measures
+the transient at the start.
+
+Verdicts. ``drifting``: a reliable trend test in the window exceeds ``drift_z``.
+``relaxing``: the run cannot have relaxed: it is shorter than ``relaxing_ratio`` times the
+model's relaxation time (``schema.laws.relaxation_time``), it did not start in the
+steady state, the window is not certified, and its replicas have not mixed (R-hat >
+``relaxing_rhat``); from a start not declared far from the steady state (random, uniform,
+condensed) a reliable whole-run trend |z| >= ``drift_z`` is also required.
+``certified``: every observable has R-hat <= ``rhat_max`` and bulk and tail ESS >=
+``min_ess_per_chain`` x replicas. ``found``: a window of at least ``min_snapshots``
+snapshots that is neither drifting nor relaxing.
+
+Replicas with an unreadable snapshot are left out (``replicas`` counts those used).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, fields
+from typing import Any
+
+import numpy as np
+
+from massarc.schema.laws import relaxation_time
+
+from .diagnostics import (
+    SOKAL_C,
+    detect_equilibration,
+    ess_bulk,
+    ess_tail,
+    integrated_autocorr_time,
+    rhat_rank,
+    trend_test,
+)
+from .registry import CheckContext
+
+__all__ = ["OBSERVABLES", "ObservableWindow", "Window", "WindowSettings", "stationary_window"]
+
+#: SnapshotStats fields used as observables, with their plain names.
+OBSERVABLES = {"maximum": "largest mass", "sum_sq": "sum of m^2", "occupied": "occupied sites"}
+#: Starts that are (or may be) an exact draw of the steady state.
+EXACT_STARTS = ("steady-state", "previous-run")
+#: Starts far from the steady state of a condensing system.
+FAR_STARTS = ("random", "uniform", "condensed")
+
+
+@dataclass(frozen=True)
+class WindowSettings:
+    """Thresholds of the window analysis (the ``steady-state`` check's options)."""
+
+    max_start_fraction: float = 0.5
+    min_snapshots: int = 8
+    rhat_max: float = 1.01
+    min_ess_per_chain: float = 100.0
+    drift_z: float = 5.0
+    relaxing_ratio: float = 0.1
+    relaxing_rhat: float = 1.1
+    sokal_c: float = SOKAL_C
+    grid: int = 200
+    detect_length: int = 4096
+
+    @classmethod
+    def from_options(cls, options: dict[str, Any]) -> WindowSettings:
+        """Settings from a check's options; keys that are not settings are ignored."""
+        names = {f.name for f in fields(cls)}
+        return cls(**{k: v for k, v in options.items() if k in names})
+
+
+@dataclass(frozen=True)
+class ObservableWindow:
+    """Diagnostics of one observable. Times in the run's time units, lags in snapshots.
+
+    ``start`` is this observable's detected start; the other fields are computed in the
+    common window. ``drift_*`` is the trend test in the window, ``transient_*`` the one
+    over the whole run. NaN where undefined (a constant observable has ``constant`` True).
+    """
+
+    name: str
+    constant: bool
+    start: int
+    g: float
+    tau_int: float
+    tau_time: float
+    ess_bulk: float
+    ess_tail: float
+    rhat: float
+    drift_z: float
+    drift_p: float
+    drift_reliable: bool
+    transient_z: float
+    transient_reliable: bool
+
+    def values(self) -> dict[str, Any]:
+        """Plain numbers for a check result."""
+        out: dict[str, Any] = {}
+        for f in fields(self):
+            v = getattr(self, f.name)
+            if f.name != "name":
+                out[f.name] = None if isinstance(v, float) and not math.isfinite(v) else v
+        return out
+
+
+@dataclass(frozen=True)
+class Window:
+    """The stationary window of a run (fields are a stable interface).
+
+    Attributes
+    ----------
+    found
+        True when a window free of drift was found (see the module docstring).
+    start, time
+        First snapshot of the window and its time; None when the run is too short to say.
+    snapshots, replicas
+        Window length in snapshots; number of replicas used.
+    efficiency
+        Effective-sample factor: the smallest bulk ESS / (replicas x snapshots) over the
+        observables, in (0, ~1]; multiply a count of draws in the window by it.
+    stride
+        ceil of the largest g: keep every ``stride``-th snapshot for nearly independent draws.
+    certified, drifting, relaxing
+        Verdicts defined in the module docstring.
+    run_time, relaxation_time, ratio
+        Time since the start (the first snapshot time if it is negative), the model's
+        relaxation time (None for custom models) and their ratio.
+    initial
+        Declared initial condition kind, or None.
+    observables
+        Per-observable diagnostics by SnapshotStats field name.
+    reason
+        One line on what decided ``found``.
+    """
+
+    found: bool
+    start: int | None
+    time: float | None
+    snapshots: int
+    replicas: int
+    efficiency: float
+    stride: int
+    certified: bool
+    drifting: bool
+    relaxing: bool
+    run_time: float
+    relaxation_time: float | None
+    ratio: float | None
+    initial: str | None
+    observables: dict[str, ObservableWindow] = field(default_factory=dict)
+    reason: str = ""
+
+
+def stationary_window(ctx: CheckContext, settings: WindowSettings | None = None) -> Window:
+    """The run's stationary window, computed once per run and settings (``ctx.derived``)."""
+    settings = settings or WindowSettings()
+    key = "stationary-window"
+    if settings != WindowSettings():
+        key = f"stationary-window:{settings!r}"
+    return ctx.derived(key, lambda c: compute_window(c.stats["snapshots"], c, settings))
+
+
+def _elapsed(times: np.ndarray) -> float:
+    if times.size == 0:
+        return 0.0
+    return float(times[-1] if times[0] >= 0 else times[-1] - times[0])
+
+
+def _start(mean: np.ndarray, latest: int, settings: WindowSettings) -> int:
+    """Detected start of one replica-mean series, searched on block means when it is long.
+
+    A series longer than ``detect_length`` is cut into blocks of b snapshots (aligned on
+    its end) whose means are searched: N_eff is nearly unchanged by blocking while blocks
+    are shorter than the correlation time, and a start known to b snapshots is enough.
+    """
+    block = max(1, math.ceil(mean.size / settings.detect_length))
+    skip = mean.size % block
+    if block > 1:
+        mean = mean[skip:].reshape(-1, block).mean(axis=1)
+    eq = detect_equilibration(
+        mean,
+        c=settings.sokal_c,
+        grid=settings.grid,
+        full_resolution_max=settings.grid,
+        max_start=max(0, (latest - skip) // block),
+    )
+    return min(latest, skip + eq.start * block) if block > 1 else eq.start
+
+
+def compute_window(stats: Any, ctx: CheckContext, settings: WindowSettings) -> Window:
+    """The analysis behind :func:`stationary_window` (``stats``: a SnapshotStats)."""
+    meta = ctx.meta
+    times = np.asarray(ctx.run.times, dtype=np.float64)
+    keep = np.asarray(stats.valid).all(axis=1)
+    series = {k: np.asarray(getattr(stats, k), dtype=np.float64)[keep] for k in OBSERVABLES}
+    reps, n_snap = series["maximum"].shape
+    tau_relax = relaxation_time(meta) if meta is not None else None
+    run_time = _elapsed(times[:n_snap])
+    ratio = run_time / tau_relax if tau_relax else None
+    initial = meta.run.initial.kind if meta is not None and meta.run.initial else None
+    common = {
+        "replicas": reps,
+        "run_time": run_time,
+        "relaxation_time": tau_relax,
+        "ratio": ratio,
+        "initial": initial,
+    }
+    if reps == 0 or n_snap < 2 * settings.min_snapshots:
+        why = "no replica with every snapshot readable" if reps == 0 else "too few snapshots"
+        return Window(
+            found=False, start=None, time=None, snapshots=0, efficiency=float("nan"),
+            stride=1, certified=False, drifting=False, relaxing=False, **common,
+            reason=f"{why} ({reps} replicas x {n_snap} snapshots)",
+        )  # fmt: skip
+
+    live = {k: y for k, y in series.items() if np.ptp(y) > 0}
+    latest = int(settings.max_start_fraction * (n_snap - 1))
+    latest = min(latest, n_snap - settings.min_snapshots)
+    starts = {k: _start(y.mean(axis=0), latest, settings) for k, y in live.items()}
+    start = max(starts.values(), default=0)
+    n_win = n_snap - start
+    span = times[n_snap - 1] - times[start]
+    spacing = float(span / (n_win - 1)) if n_win > 1 else float("nan")
+    obs: dict[str, ObservableWindow] = {}
+    for k, y in series.items():
+        w = y[:, start:]
+        if k not in live or np.ptp(w) == 0:  # constant over the run, or in the window
+            nan = float("nan")
+            obs[k] = ObservableWindow(
+                k, True, starts.get(k, 0), nan, nan, nan, nan, nan, nan, 0.0, 1.0, False,
+                0.0, False,
+            )  # fmt: skip
+            continue
+        ac = integrated_autocorr_time(w, settings.sokal_c)
+        drift = trend_test(w, settings.sokal_c)
+        full = trend_test(y, settings.sokal_c)
+        obs[k] = ObservableWindow(
+            k, False, starts[k], ac.g, ac.tau_int, ac.tau_int * spacing,
+            ess_bulk(w), ess_tail(w), rhat_rank(w), drift.z, drift.p, drift.reliable,
+            full.z, full.reliable,
+        )  # fmt: skip
+    return _judge(obs, start, float(times[start]), n_win, settings, common)
+
+
+def _judge(
+    obs: dict[str, ObservableWindow],
+    start: int,
+    time: float,
+    n_win: int,
+    s: WindowSettings,
+    common: dict[str, Any],
+) -> Window:
+    reps = common["replicas"]
+    live = [o for o in obs.values() if not o.constant]
+    min_ess = s.min_ess_per_chain * reps
+    certified = all(
+        o.rhat <= s.rhat_max and o.ess_bulk >= min_ess and o.ess_tail >= min_ess for o in live
+    )
+    drifts = [o for o in live if o.drift_reliable and abs(o.drift_z) >= s.drift_z]
+    transient = max((abs(o.transient_z) for o in live), default=0.0)
+    transient_sure = max((abs(o.transient_z) for o in live if o.transient_reliable), default=0.0)
+    worst_rhat = max((o.rhat for o in live), default=1.0)
+    initial, ratio = common["initial"], common["ratio"]
+    evidence = worst_rhat > s.relaxing_rhat
+    if initial not in FAR_STARTS:
+        evidence = evidence and transient_sure >= s.drift_z
+    relaxing = (
+        ratio is not None
+        and ratio < s.relaxing_ratio
+        and initial not in EXACT_STARTS
+        and not certified
+        and evidence
+    )
+    efficiency = min((o.ess_bulk / (reps * n_win) for o in live), default=1.0)
+    stride = max(1, math.ceil(max((o.g for o in live), default=1.0)))
+    if drifts:
+        d = max(drifts, key=lambda o: abs(o.drift_z))
+        reason = f"{OBSERVABLES[d.name]} drifts in the window (trend z = {d.drift_z:.1f})"
+    elif relaxing:
+        reason = (
+            f"the run spans {ratio:.3g} of the relaxation time from a "
+            f"{initial or 'undeclared'} start and its replicas have not mixed "
+            f"(R-hat {worst_rhat:.4g} > {s.relaxing_rhat}; whole-run trend z {transient:.1f})"
+        )
+    elif not live:
+        reason = "every observable is constant"
+    else:
+        reason = f"no drift from snapshot {start}"
+    return Window(
+        found=not drifts and not relaxing, start=start, time=time, snapshots=n_win,
+        efficiency=float(efficiency), stride=stride, certified=certified,
+        drifting=bool(drifts), relaxing=bool(relaxing), **common, observables=obs,
+        reason=reason,
+    )  # fmt: skip
