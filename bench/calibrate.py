@@ -184,10 +184,10 @@ def fault_wrong_b(tmp: Path, rng: np.random.Generator, seed: int) -> tuple[Path,
 def fault_coarsening(tmp: Path, rng: np.random.Generator, seed: int) -> tuple[Path, str]:
     if seed % 2:
         truth = meta_for("cmam", "periodic")
-        case = Case(truth, truth, 0.1 * L**2, 1024, 2.0, "random", "log")
+        case = Case(truth, truth, 0.03 * L**2, 1024, 2.0, "random", "log")
     else:
         truth = meta_for("zrp", "periodic", b=4.0)
-        case = Case(truth, truth, 0.02 * L**3, 1024, 1.5, "random", "log")
+        case = Case(truth, truth, 0.01 * L**3, 1024, 1.5, "random", "log")
     x, t = simulate_case(case, seed)
     return write(tmp / "f.zarr", truth, x, t), "steady-state"
 
@@ -335,7 +335,7 @@ def write_doc(path: Path, r: dict) -> None:
         "swapped; a chain with walls declared periodic and a ring declared reflecting (ZRP, "
         "some asymmetric, and CMAM, a snapshot every 0.5 time units); the ZRP simulated "
         "with one b and declared with another (fluid and condensed); a run from a random "
-        "start stopped at 0.02 L^3 (ZRP) or 0.1 L^2 (CMAM) and labelled stationary.",
+        "start stopped at 0.01 L^3 (ZRP) or 0.03 L^2 (CMAM) and labelled stationary.",
         "",
     ]
     path.parent.mkdir(exist_ok=True)
