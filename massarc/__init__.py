@@ -5,38 +5,54 @@ The public API is small:
 * :func:`open_run`, :func:`open_runs` read a run (or a collection) lazily;
 * :func:`create_run`, :func:`resume_run` write one, snapshot by snapshot;
 * :func:`load_metadata`, :func:`parse_metadata` and :class:`RunMeta` describe it;
-* :func:`audit` runs the checks (``massarc check``) and returns an :class:`AuditReport`.
+* :func:`audit` runs the checks (``massarc check``) and returns an ``AuditReport``.
 
 The layers underneath are importable too: ``massarc.schema``, ``massarc.archive``
 (including ``massarc.archive.formats``), ``massarc.validators``, ``massarc.simulate``.
+Names are resolved on first use, so ``import massarc`` (and the command line) start fast.
+
+>>> import massarc
+>>> run = massarc.open_run("samples/dune-strip.zarr")  # doctest: +SKIP
 """
 
-from typing import Any
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
 
 from massarc._version import __version__
-from massarc.archive import (
-    ArchiveError,
-    DataError,
-    NotARunError,
-    Run,
-    RunWriter,
-    create_run,
-    open_run,
-    open_runs,
-    resume_run,
-)
-from massarc.schema import MetadataError, RunMeta, load_metadata, parse_metadata
 
+if TYPE_CHECKING:
+    from massarc.archive import (
+        ArchiveError,
+        DataError,
+        NotARunError,
+        Run,
+        RunWriter,
+        create_run,
+        open_run,
+        open_runs,
+        resume_run,
+    )
+    from massarc.schema import MetadataError, RunMeta, load_metadata, parse_metadata
+    from massarc.validators import audit
 
-def audit(*args: Any, **kwargs: Any) -> Any:
-    """Run the checks on runs or collections: see :func:`massarc.validators.audit`.
-
-    Imported lazily: the statistical checks pull in scipy, which costs start-up time.
-    """
-    from massarc.validators import audit as _audit
-
-    return _audit(*args, **kwargs)
-
+_LAZY = {
+    "ArchiveError": "massarc.archive",
+    "DataError": "massarc.archive",
+    "NotARunError": "massarc.archive",
+    "Run": "massarc.archive",
+    "RunWriter": "massarc.archive",
+    "create_run": "massarc.archive",
+    "open_run": "massarc.archive",
+    "open_runs": "massarc.archive",
+    "resume_run": "massarc.archive",
+    "MetadataError": "massarc.schema",
+    "RunMeta": "massarc.schema",
+    "load_metadata": "massarc.schema",
+    "parse_metadata": "massarc.schema",
+    "audit": "massarc.validators",
+}
 
 __all__ = [
     "ArchiveError",
@@ -55,3 +71,15 @@ __all__ = [
     "parse_metadata",
     "resume_run",
 ]
+
+
+def __getattr__(name: str) -> Any:
+    if name in _LAZY:
+        value = getattr(importlib.import_module(_LAZY[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'massarc' has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

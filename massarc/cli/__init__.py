@@ -1,28 +1,49 @@
-"""The ``massarc`` command line. Each command lives in its own module and registers here."""
+"""The ``massarc`` command line. Each command lives in its own module (exposing ``command``)
+and is listed in :data:`COMMANDS`; a module is imported only when its command runs, so
+``massarc --help`` and ``massarc --version`` start instantly."""
 
 from __future__ import annotations
+
+import importlib
+from typing import Any
 
 import click
 
 from massarc._version import __version__
 
-__all__ = ["cli", "main"]
+__all__ = ["COMMANDS", "cli", "main"]
+
+#: command name -> (module of massarc.cli, one-line help shown by ``massarc --help``)
+COMMANDS: dict[str, tuple[str, str]] = {
+    "info": ("info", "Describe runs: model, lattice, boundaries, data, storage."),
+    "check": ("check", "Audit runs before publication; exit 1 when a check fails."),
+    "convert": ("convert", "Convert runs between formats, into or out of an archive."),
+    "ingest": ("ingest", "Archive a run live from a simulator's text output."),
+    "sample": ("sample", "Simulate a reference ZRP or CMAM run into an archive."),
+    "schema": ("schema_cmd", "Print the JSON Schema of run metadata."),
+}
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+class _LazyGroup(click.Group):
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        return list(COMMANDS)
+
+    def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
+        if name not in COMMANDS:
+            return None
+        module = importlib.import_module(f"{__name__}.{COMMANDS[name][0]}")
+        command: click.Command = module.command
+        return command
+
+    def format_commands(self, ctx: click.Context, formatter: Any) -> None:
+        with formatter.section("Commands"):
+            formatter.write_dl([(name, text) for name, (_, text) in COMMANDS.items()])
+
+
+@click.group(cls=_LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, "--version", prog_name="massarc")
 def cli() -> None:
-    """Archive, audit and convert lattice mass-transport runs."""
-
-
-def _register() -> None:
-    from . import check, convert, info, ingest, sample, schema_cmd
-
-    for module in (info, schema_cmd, sample, check, convert, ingest):
-        cli.add_command(module.command)
-
-
-_register()
+    """Archive, audit and convert lattice mass-transport runs (ZRP, CMAM and kin)."""
 
 
 def main() -> None:
