@@ -187,3 +187,11 @@ def test_incomplete_last_replica_and_refusals(tmp_path, meta):
     proc = _ingest(stream, dst, meta, "--resume")
     assert proc.wait(timeout=60) == 0
     _equal(dst, mass)
+
+
+def test_resume_of_an_archive_never_begun_starts_it(tmp_path, meta):
+    stream, mass = _stream(tmp_path, replicas=2, snapshots=5)
+    with open(stream, "rb") as f:
+        report = ingest(f, tmp_path / "new.zarr", meta=meta, resume=True)
+    assert report.complete and report.appended == 10 and report.skipped == 0
+    _equal(tmp_path / "new.zarr", mass)

@@ -9,9 +9,10 @@ archived.
 
 ``resume=True`` reopens the archive after a crash and skips every input snapshot it
 already holds, matched by replica index and time: feeding the whole stream again neither
-loses nor duplicates a snapshot. At the end of the input the archive is marked complete,
-unless its last replica is shorter than replica 0 or the input ended mid-line; then it
-stays incomplete and :class:`~massarc.archive.DataError` says why.
+loses nor duplicates a snapshot. An archive that was never begun is simply started, so the
+same command can be run again after any crash. At the end of the input the archive is
+marked complete, unless its last replica is shorter than replica 0 or the input ended
+mid-line; then it stays incomplete and :class:`~massarc.archive.DataError` says why.
 """
 
 from __future__ import annotations
@@ -92,15 +93,22 @@ def ingest(
     writer: RunWriter | None = None
     pump: Pump | None = None
     try:
+        path = local_path(dst_text)
+        if resume and path is not None and not (path / "zarr.json").exists():
+            resume = False  # killed before the archive began: start it (same command again)
         if resume:
             writer = resume_run(dst, commit_seconds=commit_seconds)
             _check_resume_meta(writer, meta, overrides)
             writer.name = dst_text
             pump = Pump(
-                writer, label, writer.chunk_snapshots or 1, skip_committed=True, progress=progress
+                writer,
+                label,
+                writer.chunk_snapshots or 1,
+                skip_committed=True,
+                progress=progress,
+                unit="bytes",
             )
         else:
-            path = local_path(dst_text)
             if path is not None and path.exists() and not overwrite:
                 raise ArchiveError(
                     f"{dst_text}: already exists (pass --resume to continue it, or --overwrite)"
@@ -124,7 +132,8 @@ def ingest(
                             commit_seconds=commit_seconds,
                         )
                         writer.name = dst_text
-                        pump = Pump(writer, label, writer.chunk_snapshots or 1, progress=progress)
+                        chunk = writer.chunk_snapshots or 1
+                        pump = Pump(writer, label, chunk, progress=progress, unit="bytes")
                     assert writer is not None
                     block = rows_to_block(rows, writer.meta, label, reader.bytes_done, state=width)
                     if last_replica is not None and rows.replica != last_replica:

@@ -130,6 +130,7 @@ class Pump:
         skip_committed: bool = False,
         progress: Progress | None = None,
         source: Source | None = None,
+        unit: str = "snapshots",
     ) -> None:
         self.writer = writer
         self.name = source_name
@@ -155,6 +156,7 @@ class Pump:
         self.appended = 0
         self.progress = progress
         self.source = source
+        self.unit = source.unit if source is not None else unit
 
     # -- resume --------------------------------------------------------------------------
 
@@ -215,8 +217,8 @@ class Pump:
         if item.commit:
             self.commit()
         if self.progress is not None and item.done is not None:
-            src = self.source
-            self.progress(item.done, src.total if src else None, src.unit if src else "snapshots")
+            total = self.source.total if self.source is not None else None
+            self.progress(item.done, total, self.unit)
 
     def _take(self, n: int) -> tuple[np.ndarray, np.ndarray, dict[str, np.ndarray]]:
         lockstep = self._key is None
