@@ -157,7 +157,7 @@ def test_dynamics_from_the_exact_steady_state_pass(mass):
     )  # fmt: skip
     result = check(run)
     assert result.status == "pass", result.message
-    for key in ("p_value", "chi2", "dof", "design_effect", "effective_n", "window_start"):
+    for key in ("p_value", "chi2", "dof", "design_effect", "effective_n", "window_start", "start"):
         assert result.values[key] is not None
     assert result.values["total_mass"] == mass
 

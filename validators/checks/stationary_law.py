@@ -7,12 +7,22 @@ single-site law P(m) = f(m) Z(N-1, M-m) / Z(N, M) is exact at finite size
 
 H0: the time-averaged single-site occupation law over the stationary window (all sites,
 snapshots and replicas pooled) is P. Statistic: Pearson's X^2 on the pooled counts with
-merged bins, divided by the mean design effect estimated by batch means (first-order
-Rao-Scott correction, :mod:`massarc.validators.law_fit`); p-value from F(k-1, (k-1)(m-1))
-for k bins and m batches. Batches are whole replicas when there are at least
-``min_batches`` of them, otherwise runs of consecutive histogram blocks of each replica,
-each at least ``batch_factor`` times the window's statistical inefficiency long. Replicas
-with different total masses are compared with their own laws.
+merged bins, divided by the trace of the design-effect matrix estimated by batch means
+(second-order Rao-Scott correction in F form, :mod:`massarc.validators.law_fit`); p-value
+from F(nu, nu (m - 1)) for m batches and Satterthwaite's nu. Batches are whole replicas when
+there are at least ``min_batches`` of them, otherwise runs of consecutive histogram blocks
+of each replica, each at least ``batch_factor`` times the window's statistical
+inefficiency long. Replicas with different total masses are compared with their own laws.
+
+Where the counts start. The window's start is chosen from the same data, where the tail
+looks most stationary; a chance excursion of the replica mean then passes for the end of
+a transient, and the law counted after it is biased (measured on dynamics started from
+an exact sample, 16 replicas: 15% of clean p-values below 0.05 from the detected start,
+and one run in 40 below 1e-5). So a run that declares an exact steady-state start
+(``run.initial.kind = "steady-state"``) is counted from its first snapshot (if the claim
+is false, the transient shows as a misfit, which is right); any other run from
+``start_margin`` statistical inefficiencies after the window's start, at most half-way
+into the window.
 
 ``fail`` when p < ``alpha``; ``warn`` when the effective sample n / design effect is below
 ``min_effective``, or too few batches or bins are left to judge; ``skip`` for models
@@ -77,6 +87,7 @@ class StationaryLawCheck(Check):
         "min_batches": 16,
         "batch_factor": 50.0,
         "min_effective": 1000.0,
+        "start_margin": 5.0,
     }
 
     def _opt(self, ctx: CheckContext, key: str) -> float:
@@ -93,7 +104,7 @@ class StationaryLawCheck(Check):
         if not window.found or window.start is None:
             return self.result("skip", f"no stationary window: {window.reason}")
         hist, snaps = ctx.stats["histogram"], ctx.stats["snapshots"]
-        start = int(window.start)
+        start = self._start(ctx, window, int(np.asarray(snaps.total).shape[1]))
         totals = np.asarray(snaps.total)[:, start:]
         valid = np.asarray(snaps.valid)[:, start:]
         masses: dict[int, int] = {}
@@ -121,7 +132,17 @@ class StationaryLawCheck(Check):
             min_expected=self._opt(ctx, "min_expected"),
             max_bins=int(self._opt(ctx, "max_bins")),
         )
-        return self._verdict(ctx, fit, hist.top, start, sorted(set(masses.values())))
+        values = {"window_start": int(window.start), "start": start}
+        return self._verdict(ctx, fit, hist.top, values, sorted(set(masses.values())))
+
+    def _start(self, ctx: CheckContext, window: Any, n_snap: int) -> int:
+        """First snapshot counted (see the module docstring)."""
+        assert ctx.meta is not None
+        initial = ctx.meta.run.initial
+        if initial is not None and initial.kind == "steady-state":
+            return 0
+        margin = int(self._opt(ctx, "start_margin") * window.stride)
+        return min(int(window.start) + margin, (int(window.start) + n_snap) // 2)
 
     def _batches(
         self, ctx: CheckContext, hist: Any, masses: dict[int, int], start: int, stride: int
@@ -154,8 +175,14 @@ class StationaryLawCheck(Check):
         return batches, probs
 
     def _verdict(
-        self, ctx: CheckContext, fit: LawFit, top: int, start: int, masses: list[int]
+        self,
+        ctx: CheckContext,
+        fit: LawFit,
+        top: int,
+        where: dict[str, int],
+        masses: list[int],
     ) -> CheckResult:
+        start = where["start"]
         alpha = self._opt(ctx, "alpha")
         min_eff = self._opt(ctx, "min_effective")
         thresholds = {"alpha": alpha, "min_effective": min_eff}
@@ -167,7 +194,7 @@ class StationaryLawCheck(Check):
             "effective_n": None if math.isnan(fit.effective_n) else fit.effective_n,
             "n": fit.n,
             "batches": fit.batches,
-            "window_start": start,
+            **where,
             "total_mass": masses[0] if len(masses) == 1 else masses,
         }
         if fit.dof >= 1:
