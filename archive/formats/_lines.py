@@ -38,6 +38,7 @@ __all__ = [
     "LineParser",
     "LineReader",
     "Rows",
+    "csv_columns",
     "magic_of",
     "read_csv_head",
     "read_preamble",
@@ -343,6 +344,16 @@ class CsvHead:
     columns: list[str]
     line: int
     offset: int
+
+
+def csv_columns(head: bytes) -> list[bytes]:
+    """The stripped fields of the first line of ``head`` that is neither blank nor a
+    ``#`` comment (for sniffing a CSV header)."""
+    for raw in head.split(b"\n"):
+        text = raw.strip()
+        if text and not text.startswith(b"#"):
+            return [c.strip() for c in text.split(b",")]
+    return []
 
 
 def read_csv_head(path: str | os.PathLike[str], name: str) -> CsvHead:

@@ -30,7 +30,7 @@ from massarc.schema import RunMeta
 
 from ..errors import DataError
 from ..reader import Run
-from ._lines import LineParser, LineReader, Rows, read_csv_head
+from ._lines import LineParser, LineReader, Rows, csv_columns, read_csv_head
 from ._options import check_known
 from .csv_wide import replica_runs
 from .registry import Block, Events, Format, Progress, Source, register_format
@@ -242,14 +242,8 @@ class CsvLongFormat(Format):
     writable = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
-        for raw in head.split(b"\n"):
-            text = raw.strip()
-            if text and not text.startswith(b"#"):
-                cols = [c.strip() for c in text.split(b",")]
-                return (
-                    cols[-1:] == [b"mass"] and b"time" in cols and (b"site" in cols or b"x" in cols)
-                )
-        return False
+        cols = csv_columns(head)
+        return cols[-1:] == [b"mass"] and b"time" in cols and (b"site" in cols or b"x" in cols)
 
     def read(self, path: Path | str, **options: str) -> Source:
         check_known(options, self.read_options, "reading csv-long")

@@ -26,7 +26,7 @@ from massarc.schema import RunMeta
 
 from ..errors import DataError
 from ..reader import Run
-from ._lines import LineParser, LineReader, read_csv_head
+from ._lines import LineParser, LineReader, csv_columns, read_csv_head
 from ._options import check_known
 from .registry import Block, Events, Format, Progress, Source, register_format
 from .text import export_lines, meta_comment
@@ -149,12 +149,8 @@ class CsvWideFormat(Format):
     writable = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
-        for raw in head.split(b"\n"):
-            text = raw.strip()
-            if text and not text.startswith(b"#"):
-                cols = [c.strip() for c in text.split(b",")]
-                return cols[:3] == [b"replica", b"time", b"m0"] or cols[:2] == [b"time", b"m0"]
-        return False
+        cols = csv_columns(head)
+        return cols[:3] == [b"replica", b"time", b"m0"] or cols[:2] == [b"time", b"m0"]
 
     def read(self, path: Path | str, **options: str) -> Source:
         check_known(options, self.read_options, "reading csv-wide")
