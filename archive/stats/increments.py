@@ -29,7 +29,7 @@ same numbers from NumPy otherwise or with ``MASSARC_PURE=1``). Memory is bounded
 number of blocks shrinks when there are many replicas.
 
 Options: ``positions`` (default 32), ``lines`` (orthogonal lines pooled in 2D, default
-32), ``blocks`` per replica (default 16).
+16), ``blocks`` per replica (default 16).
 
 >>> plan = plan_axis(0, 12, positions=4)   # the seam, 4 bonds, 2 + 2 distant pairs
 >>> plan.first.tolist(), plan.second.tolist()
@@ -97,7 +97,7 @@ def _spread(stop: int, count: int) -> np.ndarray:
 
 
 def plan_axis(
-    axis: int, length: int, *, positions: int = 32, orth: int = 1, lines: int = 32
+    axis: int, length: int, *, positions: int = 32, orth: int = 1, lines: int = 16
 ) -> AxisPlan | None:
     """The pairs followed along an axis of ``length`` sites (None when it is too short).
 
@@ -123,51 +123,71 @@ def plan_axis(
     return AxisPlan(axis, length, first, second, kind, picked, columns, ia, ib)
 
 
+def _segments(blk: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Runs of equal block index in the sorted ``blk``: starts (with the end appended) and
+    the block of each run."""
+    starts = np.concatenate([[0], np.flatnonzero(np.diff(blk)) + 1])
+    return np.append(starts, len(blk)).astype(np.int64), blk[starts].astype(np.int64)
+
+
 def _signs_numpy(x: np.ndarray, columns: np.ndarray, lines: np.ndarray) -> np.ndarray:
     sel = x[:, columns][:, :, lines]
     after, before = sel[1:], sel[:-1]
-    return (after > before).astype(np.int8) - (after < before).astype(np.int8)
+    signs = (after > before).astype(np.int8) - (after < before).astype(np.int8)
+    return np.ascontiguousarray(signs.transpose(1, 0, 2))
 
 
 def _pairs_numpy(s: np.ndarray, ia: np.ndarray, ib: np.ndarray, blk: np.ndarray) -> np.ndarray:
-    a, b = s[:, ia].astype(np.int64), s[:, ib].astype(np.int64)
+    a, b = s[ia].astype(np.int64), s[ib].astype(np.int64)  # (pair, time, line)
     per_t = np.stack([(a * b).sum(2), np.abs(a).sum(2), np.abs(b).sum(2), a.sum(2), b.sum(2)])
-    starts = np.concatenate([[0], np.flatnonzero(np.diff(blk)) + 1])
+    bounds, which = _segments(blk)
     out = np.zeros((int(blk[-1]) + 1, len(ia), _NSUMS), np.int64)
-    out[blk[starts]] = np.add.reduceat(per_t, starts, axis=1).transpose(1, 2, 0)
+    out[which] = np.add.reduceat(per_t, bounds[:-1], axis=2).transpose(2, 1, 0)
     return out
 
 
 if njit is not None:
 
     @njit(cache=True, nogil=True)
-    def _signs_fast(x, columns, lines):  # pragma: no cover - compiled
+    def _signs_rows(x, columns):  # pragma: no cover - compiled
+        """Sign increments (column, time, 1) of a 1D lattice ``x`` (time, site)."""
+        n, nc = x.shape[0] - 1, columns.shape[0]
+        out = np.empty((nc, max(n, 0), 1), np.int8)
+        for t in range(n):
+            for ci in range(nc):
+                after, before = x[t + 1, columns[ci]], x[t, columns[ci]]
+                out[ci, t, 0] = np.int8(after > before) - np.int8(after < before)
+        return out
+
+    @njit(cache=True, nogil=True)
+    def _signs_lines(x, columns, lines):  # pragma: no cover - compiled
+        """Sign increments (column, time, line) of ``x`` (time, along, line)."""
         n, nc, no = x.shape[0] - 1, columns.shape[0], lines.shape[0]
-        out = np.empty((max(n, 0), nc, no), np.int8)
+        out = np.empty((nc, max(n, 0), no), np.int8)
         for t in range(n):
             for ci in range(nc):
                 c = columns[ci]
                 for oi in range(no):
-                    o = lines[oi]
-                    after, before = x[t + 1, c, o], x[t, c, o]
-                    out[t, ci, oi] = 1 if after > before else (-1 if after < before else 0)
+                    after, before = x[t + 1, c, lines[oi]], x[t, c, lines[oi]]
+                    out[ci, t, oi] = np.int8(after > before) - np.int8(after < before)
         return out
 
     @njit(cache=True, nogil=True)
-    def _pairs_fast(s, ia, ib, blk):  # pragma: no cover - compiled
-        out = np.zeros((blk[-1] + 1, ia.shape[0], 5), np.int64)
-        for t in range(s.shape[0]):
-            b = blk[t]
+    def _pairs_fast(s, ia, ib, bounds, which, nblocks):  # pragma: no cover - compiled
+        out = np.zeros((nblocks, ia.shape[0], 5), np.int64)
+        for g in range(which.shape[0]):
+            t0, t1, b = bounds[g], bounds[g + 1], which[g]
             for p in range(ia.shape[0]):
-                i, j = ia[p], ib[p]
+                u = s[ia[p], t0:t1].ravel()  # contiguous: (time, line) of one column
+                v = s[ib[p], t0:t1].ravel()
                 sab = saa = sbb = sa = sb = 0
-                for o in range(s.shape[2]):
-                    u, v = np.int64(s[t, i, o]), np.int64(s[t, j, o])
-                    sab += u * v
-                    saa += u * u
-                    sbb += v * v
-                    sa += u
-                    sb += v
+                for k in range(u.shape[0]):
+                    uu, vv = np.int64(u[k]), np.int64(v[k])
+                    sab += uu * vv
+                    saa += uu * uu
+                    sbb += vv * vv
+                    sa += uu
+                    sb += vv
                 out[b, p, 0] += sab
                 out[b, p, 1] += saa
                 out[b, p, 2] += sbb
@@ -181,11 +201,17 @@ def _use_numba() -> bool:
     return njit is not None and os.environ.get("MASSARC_PURE", "") not in ("1", "true", "yes")
 
 
-def _reduce_axis(x: np.ndarray, plan: AxisPlan, blk: np.ndarray) -> np.ndarray:
-    """Sums (nblocks, pairs, 5) of the sign increments of ``x`` ``(time, along, line)``."""
-    if _use_numba():
-        return _pairs_fast(_signs_fast(x, plan.columns, plan.lines), plan.ia, plan.ib, blk)
-    return _pairs_numpy(_signs_numpy(x, plan.columns, plan.lines), plan.ia, plan.ib, blk)
+def _reduce_axis(mass: np.ndarray, plan: AxisPlan, blk: np.ndarray) -> np.ndarray:
+    """Sums (nblocks, pairs, 5) of the sign increments of ``mass`` ``(time, *lattice)``."""
+    x = _as_lines(mass, plan.axis)
+    if not _use_numba():
+        return _pairs_numpy(_signs_numpy(x, plan.columns, plan.lines), plan.ia, plan.ib, blk)
+    if mass.ndim == 2 and mass.flags.c_contiguous:
+        signs = _signs_rows(mass, plan.columns)
+    else:
+        signs = _signs_lines(x, plan.columns, plan.lines)
+    bounds, which = _segments(blk)
+    return _pairs_fast(signs, plan.ia, plan.ib, bounds, which, int(blk[-1]) + 1)
 
 
 def _as_lines(mass: np.ndarray, axis: int) -> np.ndarray:
@@ -264,7 +290,7 @@ class IncrementStatistic(Statistic):
         super().__init__(run, **options)
         shape = tuple(run.lattice_shape)
         positions = int(options.get("positions", 32))
-        lines = int(options.get("lines", 32))
+        lines = int(options.get("lines", 16))
         if positions < 2 or lines < 1:
             raise ValueError(
                 f"increments: expected positions >= 2 and lines >= 1; got {positions}, {lines}"
@@ -295,9 +321,7 @@ class IncrementStatistic(Statistic):
         blk = (b - first).astype(np.int64)
         nbl = int(blk[-1]) + 1
         x = _kernel_input(mass)
-        parts = [
-            None if p is None else _reduce_axis(_as_lines(x, p.axis), p, blk) for p in self.plans
-        ]
+        parts = [None if p is None else _reduce_axis(x, p, blk) for p in self.plans]
         return first, np.bincount(blk, minlength=nbl), parts
 
     def _add(self, replica: int, partial: Any) -> None:
