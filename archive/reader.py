@@ -18,6 +18,7 @@ import os
 from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import zarr
@@ -71,6 +72,13 @@ class Run:
     name: str
     header: ArchiveHeader | None
     problems: list[str] = field(default_factory=list)
+    _members: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
+
+    def _member(self, key: str) -> Any:
+        """``group.get(key)``, looked up once: a Zarr group lookup costs a store read."""
+        if key not in self._members:
+            self._members[key] = self.group.get(key)
+        return self._members[key]
 
     # -- what the run is ---------------------------------------------------------------
 
@@ -82,7 +90,7 @@ class Run:
     def state(self) -> WriteState:
         if self.header is not None:
             return self.header.state
-        m = self.group.get(MASS)
+        m = self._member(MASS)
         shape = m.shape if isinstance(m, zarr.Array) else (0, 0)
         return WriteState(snapshots=int(shape[1]), replicas=int(shape[0]), complete=False)
 
@@ -93,14 +101,14 @@ class Run:
     @property
     def mass(self) -> zarr.Array:
         """The raw Zarr array (its shape may exceed the committed extent after a crash)."""
-        arr = self.group.get(MASS)
+        arr = self._member(MASS)
         if not isinstance(arr, zarr.Array):
             raise ArchiveError(f"{self.name}: no '{MASS}' array")
         return arr
 
     @property
     def has_data(self) -> bool:
-        return isinstance(self.group.get(MASS), zarr.Array) and self.n_snapshots > 0
+        return isinstance(self._member(MASS), zarr.Array) and self.n_snapshots > 0
 
     @property
     def n_replicas(self) -> int:
@@ -112,7 +120,7 @@ class Run:
 
     @property
     def lattice_shape(self) -> tuple[int, ...]:
-        arr = self.group.get(MASS)
+        arr = self._member(MASS)
         if isinstance(arr, zarr.Array):
             return tuple(int(x) for x in arr.shape[2:])
         return tuple(self.meta.lattice.sites) if self.meta else ()
@@ -132,11 +140,15 @@ class Run:
 
     @property
     def times(self) -> np.ndarray:
-        """The committed snapshot times (float64)."""
-        arr = self.group.get(TIME)
-        if not isinstance(arr, zarr.Array):
-            return np.empty(0)
-        return np.asarray(arr[: self.n_snapshots], dtype=np.float64)
+        """The committed snapshot times (float64, read-only; read once)."""
+        if "times" not in self._members:
+            arr = self._member(TIME)
+            times = np.empty(0)
+            if isinstance(arr, zarr.Array):
+                times = np.asarray(arr[: self.n_snapshots], dtype=np.float64)
+            times.setflags(write=False)
+            self._members["times"] = times
+        return self._members["times"]
 
     @property
     def nbytes(self) -> int:
@@ -193,7 +205,7 @@ class Run:
         return np.asarray(self.mass[replica, start:stop])
 
     def _raw_shape(self) -> tuple[int, ...]:
-        arr = self.group.get(MASS)
+        arr = self._member(MASS)
         return tuple(arr.shape) if isinstance(arr, zarr.Array) else (0, 0)
 
     def __repr__(self) -> str:

@@ -87,6 +87,7 @@ class WindowSettings:
     sokal_c: float = SOKAL_C
     grid: int = 200
     detect_length: int = 4096
+    diagnostic_length: int = 8192
 
     @classmethod
     def from_options(cls, options: dict[str, Any]) -> WindowSettings:
@@ -213,6 +214,22 @@ def _start(mean: np.ndarray, latest: int, settings: WindowSettings) -> int:
     return min(latest, skip + eq.start * block) if block > 1 else eq.start
 
 
+def _blocked(y: np.ndarray, length: int) -> tuple[np.ndarray, int]:
+    """Means of blocks of b snapshots (aligned on the end), so that at most ``length``
+    points per replica remain; returns (series, b).
+
+    Blocking keeps the information while blocks are shorter than the correlation time;
+    longer blocks only lower the ESS (at most ``length`` per replica) and raise g (to at
+    most b): the verdicts can only become more cautious, and the diagnostics of a run of
+    millions of snapshots cost no more than those of ``length``.
+    """
+    b = max(1, math.ceil(y.shape[1] / length))
+    if b == 1:
+        return y, 1
+    skip = y.shape[1] % b
+    return y[:, skip:].reshape(y.shape[0], -1, b).mean(axis=2), b
+
+
 def compute_window(stats: Any, ctx: CheckContext, settings: WindowSettings) -> Window:
     """The analysis behind :func:`stationary_window` (``stats``: a SnapshotStats)."""
     meta = ctx.meta
@@ -257,11 +274,12 @@ def compute_window(stats: Any, ctx: CheckContext, settings: WindowSettings) -> W
                 0.0, False,
             )  # fmt: skip
             continue
+        w, b = _blocked(w, settings.diagnostic_length)
         ac = integrated_autocorr_time(w, settings.sokal_c)
         drift = trend_test(w, settings.sokal_c)
-        full = trend_test(y, settings.sokal_c)
+        full = trend_test(_blocked(y, settings.diagnostic_length)[0], settings.sokal_c)
         obs[k] = ObservableWindow(
-            k, False, starts[k], ac.g, ac.tau_int, ac.tau_int * spacing,
+            k, False, starts[k], ac.g * b, ac.tau_int * b, ac.tau_int * b * spacing,
             ess_bulk(w), ess_tail(w), rhat_rank(w), drift.z, drift.p, drift.reliable,
             full.z, full.reliable,
         )  # fmt: skip
