@@ -179,7 +179,7 @@ def seam_test(
     data: AxisIncrements,
     boundary: str,
     *,
-    alpha: float = 1e-3,
+    alpha: float = 1e-4,
     margin: float = 2.0,
     activity: bool = True,
 ) -> SeamTest:

@@ -55,7 +55,7 @@ class BoundaryCheck(Check):
     id = "boundary"
     description = "declared boundaries agree with the data (seam correlations, event log)"
     needs: ClassVar = {"increments": {}}
-    options: ClassVar = {"alpha": 1e-3, "margin": 2.0}
+    options: ClassVar = {"alpha": 1e-4, "margin": 2.0}
 
     def run(self, ctx: CheckContext) -> CheckResult:
         meta = ctx.meta

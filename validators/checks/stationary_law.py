@@ -81,7 +81,7 @@ class StationaryLawCheck(Check):
     description = "single-site occupation law in the stationary window matches the exact ZRP law"
     needs: ClassVar = {"histogram": {}, "snapshots": {}}
     options: ClassVar = {
-        "alpha": 1e-3,
+        "alpha": 1e-4,
         "min_expected": 5.0,
         "max_bins": 40,
         "min_batches": 16,
