@@ -13,7 +13,6 @@ is listed; a broken plugin gives a warning, not a crash.
 
 from __future__ import annotations
 
-import warnings
 from abc import ABC, abstractmethod
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -21,6 +20,7 @@ from importlib.metadata import entry_points
 from typing import Any, ClassVar
 
 from massarc.archive import Run
+from massarc.archive.plugins import load_plugins
 from massarc.schema import RunMeta
 
 from .result import CheckResult, Status, Where
@@ -141,22 +141,13 @@ def _validate(cls: Any, origin: str) -> None:
 def _load_plugins() -> dict[str, type[Check]]:
     global _PLUGINS
     if _PLUGINS is None:
-        found: dict[str, type[Check]] = {}
-        for ep in entry_points(group=ENTRY_POINT_GROUP):
-            try:
-                cls = ep.load()
-                _validate(cls, origin=f"entry point {ep.name!r} ({ep.value})")
-            except Exception as exc:  # a broken plugin must not break the tool
-                warnings.warn(f"massarc: skipping check plugin {ep.name!r}: {exc}", stacklevel=2)
-                continue
-            if cls.id in _BUILTIN or cls.id in found:
-                warnings.warn(
-                    f"massarc: check plugin {ep.name!r} reuses id {cls.id!r}; the first wins",
-                    stacklevel=2,
-                )
-                continue
-            found[cls.id] = cls
-        _PLUGINS = found
+        _PLUGINS = load_plugins(
+            entry_points(group=ENTRY_POINT_GROUP),
+            kind="check",
+            key="id",
+            validate=_validate,
+            taken=_BUILTIN,
+        )
     return _PLUGINS
 
 

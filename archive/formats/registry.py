@@ -18,7 +18,6 @@ name (``--from``/``--to``) overrides both.
 from __future__ import annotations
 
 import os
-import warnings
 from abc import ABC, abstractmethod
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass
@@ -31,6 +30,7 @@ import numpy as np
 from massarc.schema import RunMeta
 
 from ..errors import ArchiveError
+from ..plugins import load_plugins
 from ..reader import Run
 
 __all__ = [
@@ -214,23 +214,13 @@ def register_format(cls: type[Format]) -> type[Format]:
 def _load_plugins() -> dict[str, type[Format]]:
     global _PLUGINS
     if _PLUGINS is None:
-        found: dict[str, type[Format]] = {}
-        for ep in entry_points(group=ENTRY_POINT_GROUP):
-            try:
-                cls = ep.load()
-                _validate(cls, origin=f"entry point {ep.name!r} ({ep.value})")
-            except Exception as exc:  # a broken plugin must not break the tool
-                warnings.warn(f"massarc: skipping format plugin {ep.name!r}: {exc}", stacklevel=2)
-                continue
-            if cls.name in _BUILTIN or cls.name in found:
-                warnings.warn(
-                    f"massarc: format plugin {ep.name!r} reuses the name {cls.name!r}; "
-                    "the first registered wins",
-                    stacklevel=2,
-                )
-                continue
-            found[cls.name] = cls
-        _PLUGINS = found
+        _PLUGINS = load_plugins(
+            entry_points(group=ENTRY_POINT_GROUP),
+            kind="format",
+            key="name",
+            validate=_validate,
+            taken=_BUILTIN,
+        )
     return _PLUGINS
 
 
