@@ -3,9 +3,11 @@
 * :mod:`.registry`: the :class:`Format` contract, registration (built-ins and the
   ``massarc.formats`` entry-point group) and detection;
 * one module per format; :mod:`.stream` is the shared path into an archive;
-* :func:`convert` (any format to any format) and :func:`ingest` (live text on a pipe).
+* :func:`convert` (any format to any format), :func:`convert_collection` (every run of
+  a sweep) and :func:`ingest` (live text on a pipe).
 """
 
+from .collection import collection_members, convert_collection
 from .convert import ConvertReport, convert
 from .registry import (
     ENTRY_POINT_GROUP,
@@ -31,7 +33,9 @@ __all__ = [
     "Source",
     "UnknownFormatError",
     "available_formats",
+    "collection_members",
     "convert",
+    "convert_collection",
     "describe_formats",
     "detect_format",
     "get_format",

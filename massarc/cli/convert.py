@@ -12,7 +12,12 @@ from typing import Any
 
 import click
 
-from massarc.archive.formats import convert, describe_formats
+from massarc.archive.formats import (
+    collection_members,
+    convert,
+    convert_collection,
+    describe_formats,
+)
 from massarc.archive.formats.registry import Progress
 
 from ._common import bad_input, die
@@ -135,6 +140,7 @@ def command(
     \b
     massarc convert run.npz run.zarr --meta meta.toml
     massarc convert run.zarr run.txt
+    massarc convert sweep/ sweep-text/ --to text       # every run of a collection
     massarc convert traj.h5 run.zarr --meta meta.toml --option mass=/traj/mass
     """
     if list_formats:
@@ -144,26 +150,43 @@ def command(
     if src is None or dst is None:
         die("convert", "expected SRC and DST (or --list-formats)")
     opts = key_values(options, "convert")
+    common = {"meta": meta, "overrides": overrides, "options": opts, "overwrite": overwrite}
+    with bad_input("convert"):
+        members = collection_members(src) if src_format in (None, "zarr") else None
+    if members is not None:
+        if dst_format is None:
+            die(
+                "convert",
+                f"{src} is a collection of {len(members)} runs: choose the format "
+                "of the outputs with --to NAME (they go into the directory DST)",
+            )
+        with bad_input("convert"), transfer_progress(f"convert {src}", quiet) as progress:
+            try:
+                for report in convert_collection(
+                    src, dst, dst_format=dst_format, progress=progress, **common
+                ):
+                    _tell(report, quiet)
+            except (IsADirectoryError, NotADirectoryError, OSError) as exc:
+                die("convert", f"{exc.filename or src}: {exc.strerror or exc}")
+        return
     with bad_input("convert"), transfer_progress(f"convert {src}", quiet) as progress:
         try:
             report = convert(
-                src,
-                dst,
-                meta=meta,
-                overrides=overrides,
-                src_format=src_format,
-                dst_format=dst_format,
-                options=opts,
-                overwrite=overwrite,
-                progress=progress,
-            )
+                src, dst, src_format=src_format, dst_format=dst_format, progress=progress,
+                **common,
+            )  # fmt: skip
         except (IsADirectoryError, NotADirectoryError, OSError) as exc:
             die("convert", f"{exc.filename or src}: {exc.strerror or exc}")
-    if not quiet:
-        for note in report.notes:
-            click.echo(f"massarc convert: note: {note}", err=True)
-        sites = " x ".join(map(str, report.sites))
-        click.echo(
-            f"{report.destination}: {report.replicas} replicas x {report.snapshots} snapshots "
-            f"x {sites} sites ({report.source_format} -> {report.destination_format})"
-        )
+    _tell(report, quiet)
+
+
+def _tell(report: Any, quiet: bool) -> None:
+    if quiet:
+        return
+    for note in report.notes:
+        click.echo(f"massarc convert: note: {note}", err=True)
+    sites = " x ".join(map(str, report.sites))
+    click.echo(
+        f"{report.destination}: {report.replicas} replicas x {report.snapshots} snapshots "
+        f"x {sites} sites ({report.source_format} -> {report.destination_format})"
+    )
