@@ -13,13 +13,18 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import zarr
 from zarr.codecs import BloscCodec, Crc32cCodec
+
+from massarc.schema.format import MASS, TIME, mass_dimensions
 
 __all__ = [
     "TARGET_CHUNK_BYTES",
     "TIME_CHUNK",
     "chunk_snapshots",
     "codecs",
+    "create_run_arrays",
+    "create_series_array",
     "mass_dtype",
     "sentinel",
 ]
@@ -72,3 +77,55 @@ def codecs(dtype: np.dtype, clevel: int = 5) -> list:
     """The default bytes-to-bytes codec chain: Blosc zstd with bit-shuffle, then crc32c."""
     shuffle = "bitshuffle" if np.dtype(dtype).kind in "ui" else "shuffle"
     return [BloscCodec(cname="zstd", clevel=clevel, shuffle=shuffle), Crc32cCodec()]
+
+
+def create_run_arrays(
+    group: zarr.Group,
+    lattice: tuple[int, ...],
+    dtype: np.dtype,
+    *,
+    hint: int | None = None,
+    clevel: int = 5,
+    time_units: str = "model time",
+) -> None:
+    """Create the empty ``mass`` and ``time`` arrays of a run (FORMAT.md, section 2)."""
+    tc = chunk_snapshots(lattice, dtype, hint)
+    group.create_array(
+        MASS,
+        shape=(0, 0, *lattice),
+        chunks=(1, tc, *lattice),
+        dtype=dtype,
+        fill_value=sentinel(dtype),
+        dimension_names=mass_dimensions(len(lattice)),
+        compressors=codecs(dtype, clevel),
+        attributes={"long_name": "mass per site"},
+        config={"write_empty_chunks": True},
+    )
+    group.create_array(
+        TIME,
+        shape=(0,),
+        chunks=(TIME_CHUNK,),
+        dtype="float64",
+        fill_value=float("nan"),
+        dimension_names=("time",),
+        compressors=codecs(np.dtype("float64"), clevel),
+        attributes={"units": time_units},
+        config={"write_empty_chunks": True},
+    )
+
+
+def create_series_array(
+    group: zarr.Group, key: str, extent: tuple[int, int], *, clevel: int = 5
+) -> None:
+    """Create an optional ``(replica, time)`` series such as ``inflow`` (FORMAT.md, 2.3)."""
+    group.create_array(
+        key,
+        shape=extent,
+        chunks=(1, TIME_CHUNK),
+        dtype="int64",
+        fill_value=np.iinfo(np.int64).min,
+        dimension_names=("replica", "time"),
+        compressors=codecs(np.dtype("int64"), clevel),
+        attributes={"long_name": f"cumulative mass {key} since the first snapshot"},
+        config={"write_empty_chunks": True},
+    )

@@ -35,11 +35,18 @@ from massarc.schema.format import (
     OUTFLOW,
     RUN_FORMAT,
     TIME,
-    mass_dimensions,
 )
 
+from .blockcheck import check_masses
+from .blockcheck import check_times as _check_times
 from .errors import ArchiveError, DataError
-from .layout import TIME_CHUNK, chunk_snapshots, codecs, mass_dtype, sentinel
+from .layout import (
+    chunk_snapshots,
+    create_run_arrays,
+    create_series_array,
+    mass_dtype,
+    sentinel,
+)
 from .store import Location, describe, local_path, open_store
 
 __all__ = ["RunWriter", "create_run", "resume_run"]
@@ -372,43 +379,8 @@ class RunWriter:
         self, t: np.ndarray, m: np.ndarray, first: int, rep0: int, check_times: bool
     ) -> None:
         if check_times:
-            if not np.all(np.isfinite(t)):
-                i = int(np.argmin(np.isfinite(t)))
-                raise DataError(
-                    f"{self.name}: snapshot {first + i}: time {float(t[i])} is not finite"
-                )
-            prev = self.last_time
-            seq = t if prev is None else np.concatenate([[prev], t])
-            steps = np.diff(seq)
-            if np.any(steps <= 0):
-                i = int(np.argmax(steps <= 0))
-                index = first + i + (1 if prev is None else 0)
-                raise DataError(
-                    f"{self.name}: snapshot {index}: time {float(seq[i + 1])} is not after the "
-                    f"previous {float(seq[i])}"
-                )
-        where = None
-        if m.dtype.kind == "f":
-            bad = ~np.isfinite(m) | (m != np.round(m))
-            if bad.any():
-                where = np.unravel_index(int(np.argmax(bad)), m.shape)
-                what = "is not an integer"
-        elif m.dtype.kind not in "ui":
-            raise DataError(f"{self.name}: expected integer masses; got dtype {m.dtype}")
-        if where is None and m.dtype.kind in "fi" and m.size and m.min() < 0:
-            where = np.unravel_index(int(np.argmax(m < 0)), m.shape)
-            what = "is negative"
-        limit = sentinel(self._dtype) if self._dtype is not None else None
-        if where is None and limit is not None and m.size and m.max() >= limit:
-            where = np.unravel_index(int(np.argmax(m >= limit)), m.shape)
-            what = f"does not fit {self._dtype} (largest storable {limit - 1}; pass max_mass)"
-        if where is not None:
-            r, s, *site = (int(x) for x in where)
-            site_txt = site[0] if len(site) == 1 else tuple(site)
-            raise DataError(
-                f"{self.name}: replica {rep0 + r}, snapshot {first + s}, site {site_txt}: "
-                f"mass {m[where].item()} {what}"
-            )
+            _check_times(self.name, t, first, self.last_time)
+        check_masses(self.name, m, first, rep0, self._dtype)
 
     def _record_first_totals(self, m: np.ndarray, first: int, rep0: int) -> None:
         if first != 0:
@@ -450,43 +422,13 @@ class RunWriter:
             if self._dtype is None:
                 self._choose_dtype(data)
             assert self._dtype is not None
-            tc = chunk_snapshots(self._lattice, self._dtype, self._hint)
-            g.create_array(
-                MASS,
-                shape=(0, 0, *self._lattice),
-                chunks=(1, tc, *self._lattice),
-                dtype=self._dtype,
-                fill_value=sentinel(self._dtype),
-                dimension_names=mass_dimensions(len(self._lattice)),
-                compressors=codecs(self._dtype, self._clevel),
-                attributes={"long_name": "mass per site"},
-                config={"write_empty_chunks": True},
-            )
-            g.create_array(
-                TIME,
-                shape=(0,),
-                chunks=(TIME_CHUNK,),
-                dtype="float64",
-                fill_value=float("nan"),
-                dimension_names=("time",),
-                compressors=codecs(np.dtype("float64"), self._clevel),
-                attributes={"units": self.meta.run.time_units},
-                config={"write_empty_chunks": True},
-            )
+            create_run_arrays(
+                g, self._lattice, self._dtype, hint=self._hint, clevel=self._clevel,
+                time_units=self.meta.run.time_units,
+            )  # fmt: skip
         for k in series:
             if k not in g:
-                nrep = g[MASS].shape[0]
-                g.create_array(
-                    k,
-                    shape=(nrep, g[MASS].shape[1]),
-                    chunks=(1, TIME_CHUNK),
-                    dtype="int64",
-                    fill_value=np.iinfo(np.int64).min,
-                    dimension_names=("replica", "time"),
-                    compressors=codecs(np.dtype("int64"), self._clevel),
-                    attributes={"long_name": f"cumulative mass {k} since the first snapshot"},
-                    config={"write_empty_chunks": True},
-                )
+                create_series_array(g, k, tuple(g[MASS].shape[:2]), clevel=self._clevel)
 
     def _resize(self, extent: tuple[int, int]) -> None:
         g = self._group
