@@ -69,23 +69,36 @@ def finish(path: Path, data: np.ndarray, times: np.ndarray, mode: str) -> None:
     w.close()
 
 
+def _child(path: Path, mode: str, env: dict[str, str]) -> subprocess.Popen[str]:
+    args = [str(path), mode, *(str(x) for x in (R, T, L, M, STEP))]
+    return subprocess.Popen(
+        [sys.executable, "-c", CHILD, *args], stdout=subprocess.PIPE, text=True, env=env
+    )
+
+
+def _write_time(path: Path, mode: str, env: dict[str, str]) -> float:
+    child = _child(path, mode, env)
+    assert child.stdout is not None and child.stdout.readline().strip() == "started"
+    t0 = time.perf_counter()
+    assert child.wait() == 0
+    return time.perf_counter() - t0
+
+
 @pytest.mark.parametrize("mode", ["lockstep", "replica"])
 def test_sigkill_at_random_moments_leaves_a_consistent_prefix(tmp_path: Path, mode: str) -> None:
     data, times = expected()
     rng = np.random.default_rng(2024 if mode == "lockstep" else 2025)
     env = {**os.environ, "PYTHONWARNINGS": "ignore"}
+    # how long an uninterrupted writer takes here, so that kills land while it writes
+    # whatever the speed of the machine
+    duration = _write_time(tmp_path / f"{mode}-timing.zarr", mode, env)
     killed_mid_write = 0
     for trial in range(10):  # 10 kills per mode: 20 in all
         path = tmp_path / f"{mode}-{trial}.zarr"
-        child = subprocess.Popen(
-            [sys.executable, "-c", CHILD, str(path), mode, *(str(x) for x in (R, T, L, M, STEP))],
-            stdout=subprocess.PIPE,
-            text=True,
-            env=env,
-        )
+        child = _child(path, mode, env)
         assert child.stdout is not None
         assert child.stdout.readline().strip() == "started"
-        time.sleep(float(rng.uniform(0.0, 1.2)))
+        time.sleep(float(rng.uniform(0.0, 0.9 * duration)))
         child.send_signal(signal.SIGKILL)
         child.wait()
         run = open_run(path)
