@@ -8,7 +8,7 @@ import numpy as np
 from .errors import DataError
 from .layout import sentinel
 
-__all__ = ["check_masses", "check_times"]
+__all__ = ["check_masses", "check_times", "first_bad_mass"]
 
 
 def check_times(name: str, t: np.ndarray, first: int, previous: float | None) -> None:
@@ -28,31 +28,49 @@ def check_times(name: str, t: np.ndarray, first: int, previous: float | None) ->
         )
 
 
+def first_bad_mass(
+    m: np.ndarray, limit: int | None, too_large: str
+) -> tuple[tuple[int, ...], str] | None:
+    """Index and reason of the first mass that cannot be stored: not an integer, negative,
+    or ``>= limit`` (then the reason is ``too_large``); None when every mass is fine.
+    Raises :class:`DataError` for a dtype that cannot hold masses at all."""
+    if not m.size:
+        return None
+    kind = m.dtype.kind
+    if kind == "f":
+        bad = ~np.isfinite(m) | (m != np.round(m))
+        if bad.any():
+            return tuple(int(i) for i in np.unravel_index(int(np.argmax(bad)), m.shape)), (
+                "is not an integer"
+            )
+    elif kind not in "ui":
+        raise DataError(f"expected integer masses; got dtype {m.dtype}")
+    if kind in "if" and m.min() < 0:
+        return tuple(int(i) for i in np.unravel_index(int(np.argmax(m < 0)), m.shape)), (
+            "is negative"
+        )
+    if limit is not None and m.max() >= limit:
+        idx = np.unravel_index(int(np.argmax(m >= limit)), m.shape)
+        return tuple(int(i) for i in idx), too_large
+    return None
+
+
 def check_masses(
     name: str, m: np.ndarray, first: int, replica0: int, dtype: np.dtype | None
 ) -> None:
     """Masses ``(replica, time, *lattice)``: integers, non-negative, below the sentinel of
     ``dtype`` (when chosen). ``first`` and ``replica0`` locate ``m[0, 0]`` in the run."""
-    where = None
-    what = ""
-    if m.dtype.kind == "f":
-        bad = ~np.isfinite(m) | (m != np.round(m))
-        if bad.any():
-            where = np.unravel_index(int(np.argmax(bad)), m.shape)
-            what = "is not an integer"
-    elif m.dtype.kind not in "ui":
-        raise DataError(f"{name}: expected integer masses; got dtype {m.dtype}")
-    if where is None and m.dtype.kind in "fi" and m.size and m.min() < 0:
-        where = np.unravel_index(int(np.argmax(m < 0)), m.shape)
-        what = "is negative"
     limit = sentinel(dtype) if dtype is not None else None
-    if where is None and limit is not None and m.size and m.max() >= limit:
-        where = np.unravel_index(int(np.argmax(m >= limit)), m.shape)
-        what = f"does not fit {dtype} (largest storable {limit - 1}; pass max_mass)"
-    if where is not None:
-        r, s, *site = (int(x) for x in where)
+    try:
+        found = first_bad_mass(
+            m, limit, f"does not fit {dtype} (largest storable {(limit or 0) - 1}; pass max_mass)"
+        )
+    except DataError as exc:
+        raise DataError(f"{name}: {exc}") from None
+    if found is not None:
+        (r, s, *site), what = found
         site_txt = site[0] if len(site) == 1 else tuple(site)
         raise DataError(
             f"{name}: replica {replica0 + r}, snapshot {first + s}, site {site_txt}: "
-            f"mass {m[where].item()} {what}"
+            f"mass {m[found[0]].item()} {what}"
         )

@@ -11,6 +11,7 @@ import numpy as np
 
 from massarc.schema import RunMeta
 
+from ..blockcheck import first_bad_mass
 from ..errors import DataError
 from .registry import Block
 
@@ -186,22 +187,15 @@ class BlockChecker:
         """``m`` is ``(replicas, n, *lattice)``."""
         if not m.size:
             return
-        kind = m.dtype.kind
-        where = what = None
-        if kind == "f":
-            bad = ~np.isfinite(m) | (m != np.round(m))
-            if bad.any():
-                where, what = np.unravel_index(int(np.argmax(bad)), m.shape), "is not an integer"
-        elif kind not in "ui":
-            raise DataError(f"{self.name}: expected integer masses; got dtype {m.dtype}")
-        if where is None and kind in "if" and m.min() < 0:
-            where, what = np.unravel_index(int(np.argmax(m < 0)), m.shape), "is negative"
-        if where is None and self.limit is not None and m.max() >= self.limit:
-            where = np.unravel_index(int(np.argmax(m >= self.limit)), m.shape)
-            what = (
-                f"is too large for the archive (largest storable {self.limit - 1}; declare "
-                "run.total_mass or pass --option max-mass=N)"
-            )
+        too_large = (
+            f"is too large for the archive (largest storable {(self.limit or 0) - 1}; declare "
+            "run.total_mass or pass --option max-mass=N)"
+        )
+        try:
+            found = first_bad_mass(m, self.limit, too_large)
+        except DataError as exc:
+            raise DataError(f"{self.name}: {exc}") from None
+        where, what = found if found is not None else (None, None)
         if where is not None:
             r, s, *site = (int(x) for x in where)
             site_txt = site[0] if len(site) == 1 else tuple(site)

@@ -97,7 +97,8 @@ def ingest(
         if resume and path is not None and not (path / "zarr.json").exists():
             resume = False  # killed before the archive began: start it (same command again)
         if resume:
-            writer = resume_run(dst, commit_seconds=commit_seconds)
+            # strict=False: the Pump's BlockChecker checks every block (file and line)
+            writer = resume_run(dst, commit_seconds=commit_seconds, strict=False)
             _check_resume_meta(writer, meta, overrides)
             writer.name = dst_text
             pump = Pump(
@@ -130,6 +131,7 @@ def ingest(
                             overwrite=overwrite,
                             dtype=dtype,
                             commit_seconds=commit_seconds,
+                            strict=False,  # the Pump's BlockChecker checks every block
                         )
                         writer.name = dst_text
                         chunk = writer.chunk_snapshots or 1

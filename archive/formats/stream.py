@@ -351,8 +351,16 @@ def write_source(
         if first is not None:
             BlockChecker(source.name, meta, None).check(first)  # report bad data first
         dtype = archive_dtype(meta, None, None, first)
+    # strict=False: every block passes the Pump's BlockChecker first, which makes the
+    # writer's checks with messages naming the input file and line; no second scan
     writer = create_run(
-        location, meta, overwrite=overwrite, dtype=dtype, snapshots_hint=hint, clevel=clevel
+        location,
+        meta,
+        overwrite=overwrite,
+        dtype=dtype,
+        snapshots_hint=hint,
+        clevel=clevel,
+        strict=False,
     )
     writer.name = name or writer.name
     pump = Pump(
