@@ -3,13 +3,13 @@ pass over chunks, and the converters from and to other formats."""
 
 from .errors import ArchiveError, DataError, NotARunError
 from .layout import chunk_snapshots, codecs, mass_dtype
-from .reader import Block, ChunkRef, Run, open_run, open_runs
+from .reader import Chunk, ChunkRef, Run, open_run, open_runs
 from .store import open_store
 from .writer import RunWriter, create_run, resume_run
 
 __all__ = [
     "ArchiveError",
-    "Block",
+    "Chunk",
     "ChunkRef",
     "DataError",
     "NotARunError",

@@ -21,7 +21,7 @@ import numpy as np
 from zarr.codecs import BloscCodec, BytesCodec, Crc32cCodec
 from zarr.storage import LocalStore
 
-from .reader import Block, ChunkRef, Run
+from .reader import Chunk, ChunkRef, Run
 
 __all__ = ["ChunkReader", "CorruptChunk", "MissingChunk"]
 
@@ -83,15 +83,15 @@ class ChunkReader:
     def __init__(self, run: Run, *, direct: bool = True) -> None:
         self.run = run
         self._direct = _direct_plan(run) if direct else None
-        self._tail = "/".join("0" for _ in run.lattice_shape)
+        self._tail = "/".join("0" for _ in run.sites)
 
     @property
     def direct(self) -> bool:
         """True when chunks are decoded without zarr-python's read path."""
         return self._direct is not None
 
-    def read(self, ref: ChunkRef) -> Block:
-        """Decode one chunk into a :class:`Block` of ``(stop - start, *lattice)``."""
+    def read(self, ref: ChunkRef) -> Chunk:
+        """Decode one chunk into a :class:`Chunk` of ``(stop - start, *lattice)``."""
         d = self._direct
         if d is None:
             return self.run.read_chunk(ref)
@@ -122,4 +122,4 @@ class ChunkReader:
             out = out.astype(out.dtype.newbyteorder("="))
         n = ref.stop - ref.start
         mass = out[:n] if n < rows else out
-        return Block(ref.replica, ref.start, ref.stop, mass, ref.key)
+        return Chunk(ref.replica, ref.start, ref.stop, mass, ref.key)

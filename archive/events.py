@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 import zarr
 
-from massarc.schema.format import EVENTS
+from massarc.schema.spec import EVENTS
 
 from .errors import DataError
 from .layout import codecs

@@ -16,7 +16,7 @@ import numpy as np
 import zarr
 from zarr.codecs import BloscCodec, Crc32cCodec
 
-from massarc.schema.format import MASS, TIME, mass_dimensions
+from massarc.schema.spec import MASS, TIME, mass_dimensions
 
 __all__ = [
     "TARGET_CHUNK_BYTES",

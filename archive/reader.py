@@ -3,7 +3,7 @@
 >>> run = open_run("samples/transit-ring.zarr")            # doctest: +SKIP
 >>> run.meta.model.family, run.n_replicas, run.n_snapshots  # doctest: +SKIP
 ('zrp', 4, 400)
->>> for block in run.blocks():                               # doctest: +SKIP
+>>> for block in run.chunks():                               # doctest: +SKIP
 ...     block.replica, block.start, block.stop, block.mass.shape
 
 Only the committed extent (the commit marker in the header) is visible: a run whose writer
@@ -24,19 +24,19 @@ import numpy as np
 import zarr
 
 from massarc.schema import ArchiveHeader, MetadataError, RunMeta, WriteState, parse_header
-from massarc.schema.format import (
+from massarc.schema.spec import (
     ATTRIBUTE_KEY,
-    COLLECTION_FORMAT,
+    COLLECTION_KIND,
     EVENTS,
     MASS,
-    RUN_FORMAT,
+    RUN_KIND,
     TIME,
 )
 
 from .errors import ArchiveError, NotARunError
-from .store import Location, describe, local_path, open_store
+from .store import Location, local_path, location_name, open_store
 
-__all__ = ["Block", "ChunkRef", "Run", "open_run", "open_runs"]
+__all__ = ["Chunk", "ChunkRef", "Run", "open_run", "open_runs"]
 
 
 @dataclass(frozen=True)
@@ -50,7 +50,7 @@ class ChunkRef:
 
 
 @dataclass(frozen=True)
-class Block:
+class Chunk:
     """The decoded masses of one chunk: ``mass`` is ``(stop - start, *lattice)``."""
 
     replica: int
@@ -119,7 +119,7 @@ class Run:
         return min(self.state.snapshots, self._raw_shape()[1])
 
     @property
-    def lattice_shape(self) -> tuple[int, ...]:
+    def sites(self) -> tuple[int, ...]:
         arr = self._member(MASS)
         if isinstance(arr, zarr.Array):
             return tuple(int(x) for x in arr.shape[2:])
@@ -128,7 +128,7 @@ class Run:
     @property
     def shape(self) -> tuple[int, ...]:
         """Committed shape ``(replicas, snapshots, *lattice)``."""
-        return (self.n_replicas, self.n_snapshots, *self.lattice_shape)
+        return (self.n_replicas, self.n_snapshots, *self.sites)
 
     @property
     def dtype(self) -> np.dtype:
@@ -179,7 +179,7 @@ class Run:
         if not self.has_data:
             return []
         tc = self.chunk_snapshots
-        tail = "/".join("0" for _ in self.lattice_shape)
+        tail = "/".join("0" for _ in self.sites)
         refs = []
         for r in range(self.n_replicas):
             for k, start in enumerate(range(0, self.n_snapshots, tc)):
@@ -187,12 +187,12 @@ class Run:
                 refs.append(ChunkRef(r, start, stop, f"{MASS}/c/{r}/{k}/{tail}"))
         return refs
 
-    def read_chunk(self, ref: ChunkRef) -> Block:
+    def read_chunk(self, ref: ChunkRef) -> Chunk:
         """Decode one chunk (raises if it is corrupt: the checksum does not match)."""
         data = np.asarray(self.mass[ref.replica, ref.start : ref.stop])
-        return Block(ref.replica, ref.start, ref.stop, data, ref.key)
+        return Chunk(ref.replica, ref.start, ref.stop, data, ref.key)
 
-    def blocks(self) -> Iterator[Block]:
+    def chunks(self) -> Iterator[Chunk]:
         """Decoded chunks one at a time, replica-major then time (memory: one chunk)."""
         for ref in self.chunk_refs():
             yield self.read_chunk(ref)
@@ -215,7 +215,7 @@ class Run:
 
 def _is_run(group: zarr.Group) -> bool:
     raw = group.attrs.get(ATTRIBUTE_KEY)
-    return isinstance(raw, dict) and raw.get("format") == RUN_FORMAT
+    return isinstance(raw, dict) and raw.get("format") == RUN_KIND
 
 
 def _run_dirs(root: Path) -> list[Path]:
@@ -234,7 +234,7 @@ def _run_dirs(root: Path) -> list[Path]:
             attrs = doc.get("attributes") or {}
             raw = attrs.get(ATTRIBUTE_KEY) if isinstance(attrs, dict) else None
             is_group = doc.get("node_type") == "group"
-            if is_group and isinstance(raw, dict) and raw.get("format") == RUN_FORMAT:
+            if is_group and isinstance(raw, dict) and raw.get("format") == RUN_KIND:
                 found.append(Path(here))
     return found
 
@@ -243,7 +243,7 @@ def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
     raw = group.attrs.get(ATTRIBUTE_KEY)
     if raw is None:
         raise NotARunError(f"{name}: not a massarc run (no '{ATTRIBUTE_KEY}' group attribute)")
-    if isinstance(raw, dict) and raw.get("format") == COLLECTION_FORMAT:
+    if isinstance(raw, dict) and raw.get("format") == COLLECTION_KIND:
         raise NotARunError(f"{name}: a collection of runs, not a single run")
     try:
         header = parse_header(raw, name)
@@ -255,7 +255,7 @@ def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
 
 
 def _open_group(location: Location) -> zarr.Group:
-    name = describe(location)
+    name = location_name(location)
     store = open_store(location, "r")
     try:
         return zarr.open_group(store, mode="r", zarr_format=3, use_consolidated=False)
@@ -270,13 +270,13 @@ def open_run(location: Location, *, lenient: bool = False) -> Run:
     :class:`~massarc.schema.MetadataError` when its header is invalid, unless ``lenient``
     (then ``run.problems`` lists what is wrong and ``run.meta`` is None).
     """
-    return _from_group(_open_group(location), describe(location), lenient)
+    return _from_group(_open_group(location), location_name(location), lenient)
 
 
 def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
     """Open a run, or every run of a collection (a Zarr group of runs, or a directory of
     run archives), in name order."""
-    name = describe(location)
+    name = location_name(location)
     path = local_path(location)
     if path is not None and path.is_dir() and not (path / "zarr.json").exists():
         runs = [_from_group(_open_group(d), str(d), lenient) for d in _run_dirs(path)]
@@ -287,7 +287,7 @@ def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
     if _is_run(group):
         return [_from_group(group, name, lenient)]
     raw = group.attrs.get(ATTRIBUTE_KEY)
-    is_collection = isinstance(raw, dict) and raw.get("format") == COLLECTION_FORMAT
+    is_collection = isinstance(raw, dict) and raw.get("format") == COLLECTION_KIND
     runs = []
     for key, child in sorted(group.groups()):
         if _is_run(child):

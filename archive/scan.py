@@ -37,7 +37,8 @@ from typing import Any, ClassVar
 import numpy as np
 
 from ._chunk_read import ChunkReader, MissingChunk
-from .reader import Block, ChunkRef, Run
+from .progress import Progress
+from .reader import Chunk, ChunkRef, Run
 
 __all__ = [
     "ChunkFault",
@@ -75,7 +76,7 @@ class Statistic(ABC):
         """Called once before the pass with all statistics of the pass (default: nothing)."""
 
     @abstractmethod
-    def chunk(self, block: Block) -> Any:
+    def chunk(self, block: Chunk) -> Any:
         """Reduce one decoded chunk (thread-safe, no shared state). Return a partial."""
 
     @abstractmethod
@@ -294,14 +295,14 @@ def scan(
     run: Run,
     statistics: Iterable[Statistic],
     *,
-    progress: Callable[[int, int], None] | None = None,
+    progress: Progress | None = None,
     workers: int | None = None,
     in_flight: int | None = None,
     direct: bool = True,
 ) -> ScanResult:
     """Read every committed chunk of ``run`` once and feed it to every statistic.
 
-    ``progress(done, total)`` is called (in the calling thread) after each chunk. A chunk
+    ``progress(done, total, "chunks")`` is called (in the calling thread) after each chunk. A chunk
     that fails to decode (checksum mismatch, truncated file) or whose storage object is
     missing (found by listing the store once, before the pass) becomes a
     :class:`ChunkFault`; the pass goes on without it. ``workers`` threads decode and
@@ -334,7 +335,7 @@ def scan(
         nonlocal done_count
         done_count += 1
         if progress:
-            progress(done_count, len(refs))
+            progress(done_count, len(refs), "chunks")
 
     pool = ThreadPoolExecutor(max_workers=n_workers, thread_name_prefix="massarc-scan")
     try:

@@ -19,7 +19,7 @@ from zarr.storage import FsspecStore, LocalStore, ZipStore
 
 from .errors import ArchiveError
 
-__all__ = ["Location", "describe", "local_path", "open_store"]
+__all__ = ["Location", "local_path", "location_name", "open_store"]
 
 Location = str | os.PathLike[str] | Store
 
@@ -38,7 +38,7 @@ def local_path(location: Location) -> Path | None:
     return Path(text)
 
 
-def describe(location: Location) -> str:
+def location_name(location: Location) -> str:
     """A short human name for a location, used in messages."""
     if isinstance(location, Store):
         return str(location)

@@ -27,19 +27,19 @@ import zarr
 from zarr.errors import ContainsArrayError, ContainsGroupError
 
 from massarc.schema import ArchiveHeader, RunMeta, WriteState, parse_header
-from massarc.schema.format import (
+from massarc.schema.spec import (
+    ARCHIVE_VERSION,
     ATTRIBUTE_KEY,
-    FORMAT_VERSION,
     INFLOW,
     MASS,
     OUTFLOW,
-    RUN_FORMAT,
+    RUN_KIND,
     TIME,
 )
 
-from .blockcheck import check_masses
-from .blockcheck import check_times as _check_times
 from .errors import ArchiveError, DataError
+from .guards import check_times as _check_times
+from .guards import guard_masses
 from .layout import (
     chunk_snapshots,
     create_run_arrays,
@@ -47,7 +47,7 @@ from .layout import (
     mass_dtype,
     sentinel,
 )
-from .store import Location, describe, local_path, open_store
+from .store import Location, local_path, location_name, open_store
 
 __all__ = ["RunWriter", "create_run", "resume_run"]
 
@@ -56,7 +56,7 @@ _SERIES = (INFLOW, OUTFLOW)
 
 def _header_dict(meta: RunMeta, state: WriteState) -> dict[str, Any]:
     header = ArchiveHeader(
-        format=RUN_FORMAT, format_version=FORMAT_VERSION, state=state, metadata=meta
+        format=RUN_KIND, format_version=ARCHIVE_VERSION, state=state, metadata=meta
     )
     return header.model_dump(mode="json", exclude_none=True)
 
@@ -380,7 +380,7 @@ class RunWriter:
     ) -> None:
         if check_times:
             _check_times(self.name, t, first, self.last_time)
-        check_masses(self.name, m, first, rep0, self._dtype)
+        guard_masses(self.name, m, first, rep0, self._dtype)
 
     def _record_first_totals(self, m: np.ndarray, first: int, rep0: int) -> None:
         if first != 0:
@@ -484,7 +484,7 @@ def create_run(
     >>> with create_run("memory://doc-writer", meta, overwrite=True) as w:
     ...     w.append([0.0, 1.0], np.array([[[1, 0, 2, 1], [0, 1, 2, 1]]]))
     """
-    name = describe(location)
+    name = location_name(location)
     if dtype is not None and np.dtype(dtype).kind not in "ui":
         raise ArchiveError(f"{name}: expected an integer dtype; got {np.dtype(dtype)}")
     store = open_store(location, "w")
@@ -516,7 +516,7 @@ def resume_run(
     Arrays are trimmed to the commit marker, stray ``*.partial`` files are removed and the
     run is marked incomplete until the writer closes.
     """
-    name = describe(location)
+    name = location_name(location)
     path = local_path(location)
     if path is not None:
         if not (path / "zarr.json").is_file():

@@ -80,7 +80,7 @@ def main() -> None:
             run = open_run(path)
             stored = run.stored_bytes()
             t0 = time.perf_counter()
-            decoded = sum(block.mass.nbytes for block in run.blocks())
+            decoded = sum(block.mass.nbytes for block in run.chunks())
             t_read = time.perf_counter() - t0
             rows.append(
                 {

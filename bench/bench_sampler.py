@@ -66,7 +66,7 @@ def _loop_rate(dyn: dynamics.Dynamics, start: np.ndarray, n: int, pure: bool, re
     stops = np.array([n], dtype=np.int64)
 
     def run() -> None:
-        loop(start.copy(), out, dyn.nbr, dyn.ndim, dyn.p_right, dyn.family, dyn.rates,
+        loop(start.copy(), out, dyn.nbr, dyn.ndim, dyn.right_probability, dyn.family, dyn.rates,
              dyn.rate_max, dyn.diffusion, dyn.chipping, sites, unif, stops)  # fmt: skip
 
     return n / _best(run, rep)

@@ -20,7 +20,7 @@ from __future__ import annotations
 import importlib
 from typing import TYPE_CHECKING, Any
 
-from massarc._version import __version__
+from massarc.schema.version import __version__
 
 if TYPE_CHECKING:
     from massarc.archive import (

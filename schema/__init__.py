@@ -1,26 +1,65 @@
-"""massarc.schema: the ground floor. Metadata models, archive header, format constants,
-and the exact laws a declared model implies. Imports nothing else of massarc."""
+"""massarc.schema: the ground floor. Metadata models, archive header, the names of the
+on-disk specification, the package version, and the exact laws a declared model implies.
+Imports nothing else of massarc.
 
-from .errors import MetadataError, describe_validation_error
-from .format import ATTRIBUTE_KEY, FORMAT_VERSION, RUN_FORMAT, mass_dimensions
-from .header import ArchiveHeader, NewerFormatWarning, WriteState, parse_header
-from .load import apply_overrides, load_metadata, parse_metadata, read_metadata_file
-from .models import (
-    CMAMModel,
-    CustomModel,
-    InitialCondition,
-    Lattice,
-    OpenRates,
-    RunInfo,
-    RunMeta,
-    Simulator,
-    ZRPModel,
-)
+Names are resolved on first use (PEP 562), so that ``massarc.schema.version`` can be read
+without importing pydantic.
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from .errors import MetadataError, validation_problems
+    from .header import ArchiveHeader, NewerFormatWarning, WriteState, parse_header
+    from .load import apply_overrides, load_metadata, parse_metadata, read_metadata_file
+    from .models import (
+        CMAMModel,
+        CustomModel,
+        InitialCondition,
+        Lattice,
+        OpenRates,
+        RunInfo,
+        RunMeta,
+        Simulator,
+        ZRPModel,
+    )
+    from .spec import ARCHIVE_VERSION, ATTRIBUTE_KEY, RUN_KIND, mass_dimensions
+
+#: public name -> module of this package that defines it
+_HOME = {
+    "ARCHIVE_VERSION": "spec",
+    "ATTRIBUTE_KEY": "spec",
+    "RUN_KIND": "spec",
+    "mass_dimensions": "spec",
+    "MetadataError": "errors",
+    "validation_problems": "errors",
+    "ArchiveHeader": "header",
+    "NewerFormatWarning": "header",
+    "WriteState": "header",
+    "parse_header": "header",
+    "apply_overrides": "load",
+    "load_metadata": "load",
+    "parse_metadata": "load",
+    "read_metadata_file": "load",
+    "CMAMModel": "models",
+    "CustomModel": "models",
+    "InitialCondition": "models",
+    "Lattice": "models",
+    "OpenRates": "models",
+    "RunInfo": "models",
+    "RunMeta": "models",
+    "Simulator": "models",
+    "ZRPModel": "models",
+    "json_schema": "jsonschema",
+}
 
 __all__ = [
+    "ARCHIVE_VERSION",
     "ATTRIBUTE_KEY",
-    "FORMAT_VERSION",
-    "RUN_FORMAT",
+    "RUN_KIND",
     "ArchiveHeader",
     "CMAMModel",
     "CustomModel",
@@ -35,22 +74,24 @@ __all__ = [
     "WriteState",
     "ZRPModel",
     "apply_overrides",
-    "describe_validation_error",
     "json_schema",
     "load_metadata",
     "mass_dimensions",
     "parse_header",
     "parse_metadata",
     "read_metadata_file",
+    "validation_problems",
 ]
 
 
-def json_schema(which: str = "metadata") -> dict:
-    """The JSON Schema of the metadata file (``"metadata"``) or archive header (``"header"``)."""
-    model = {"metadata": RunMeta, "header": ArchiveHeader}.get(which)
-    if model is None:
-        raise ValueError(f"expected 'metadata' or 'header', got {which!r}")
-    schema = model.model_json_schema()
-    schema["$schema"] = "https://json-schema.org/draft/2020-12/schema"
-    schema["$id"] = f"https://massarc.invalid/schema/{which}-v{FORMAT_VERSION}.json"
-    return schema
+def __getattr__(name: str) -> Any:
+    module = _HOME.get(name)
+    if module is None:
+        raise AttributeError(f"module 'massarc.schema' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f"{__name__}.{module}"), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

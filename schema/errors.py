@@ -12,7 +12,7 @@ from typing import Any
 
 from pydantic import ValidationError
 
-__all__ = ["MetadataError", "describe_validation_error"]
+__all__ = ["MetadataError", "validation_problems"]
 
 _FAMILIES = {"zrp", "cmam", "custom"}
 
@@ -104,7 +104,7 @@ def _reason(err: dict[str, Any]) -> str:
     return msg.removeprefix("Value error, ")
 
 
-def describe_validation_error(exc: ValidationError) -> list[str]:
+def validation_problems(exc: ValidationError) -> list[str]:
     """One ``key.path: reason`` line per error of a pydantic ``ValidationError``.
 
     A custom error whose message already starts with its own key (``boundary: ...``)

@@ -17,9 +17,9 @@ from typing import Any, Literal
 
 from pydantic import Field, ValidationError
 
-from .errors import MetadataError, describe_validation_error
-from .format import FORMAT_MAJOR, FORMAT_MINOR, RUN_FORMAT, parse_version
+from .errors import MetadataError, validation_problems
 from .models import RunMeta, StrictModel
+from .spec import ARCHIVE_MAJOR, ARCHIVE_MINOR, RUN_KIND, parse_version
 
 __all__ = ["ArchiveHeader", "NewerFormatWarning", "WriteState", "parse_header"]
 
@@ -48,7 +48,7 @@ class WriteState(StrictModel):
 class ArchiveHeader(StrictModel):
     """Header of a run archive (format v1)."""
 
-    format: Literal["massarc-run"] = RUN_FORMAT
+    format: Literal["massarc-run"] = RUN_KIND
     format_version: str
     state: WriteState
     metadata: RunMeta
@@ -79,16 +79,16 @@ def parse_header(raw: Any, source: str | None = None) -> ArchiveHeader:
     if not isinstance(raw, dict):
         raise MetadataError(["massarc attribute: expected a table"], source)
     fmt = raw.get("format")
-    if fmt != RUN_FORMAT:
-        raise MetadataError([f'format: expected "{RUN_FORMAT}"; got {fmt!r}'], source)
+    if fmt != RUN_KIND:
+        raise MetadataError([f'format: expected "{RUN_KIND}"; got {fmt!r}'], source)
     try:
         major, minor = parse_version(raw.get("format_version"))
     except ValueError as exc:
         raise MetadataError([str(exc)], source) from None
-    if major != FORMAT_MAJOR:
+    if major != ARCHIVE_MAJOR:
         raise MetadataError(
             [
-                f"format_version: this massarc reads format {FORMAT_MAJOR}.x; the archive is "
+                f"format_version: this massarc reads format {ARCHIVE_MAJOR}.x; the archive is "
                 f"format {major}.{minor} (upgrade massarc to read it)"
             ],
             source,
@@ -100,7 +100,7 @@ def parse_header(raw: Any, source: str | None = None) -> ArchiveHeader:
         return ArchiveHeader.model_validate(data)
     except ValidationError as exc:
         only_unknown = all(e["type"] == "extra_forbidden" for e in exc.errors())
-        if minor > FORMAT_MINOR and only_unknown:
+        if minor > ARCHIVE_MINOR and only_unknown:
             warnings.warn(
                 f"{source or 'archive'}: written by format {major}.{minor}; ignoring fields "
                 "this massarc does not know",
@@ -110,5 +110,5 @@ def parse_header(raw: Any, source: str | None = None) -> ArchiveHeader:
             try:
                 return ArchiveHeader.model_validate(_strip_unknown(data, exc))
             except ValidationError as exc2:
-                raise MetadataError(describe_validation_error(exc2), source) from None
-        raise MetadataError(describe_validation_error(exc), source) from None
+                raise MetadataError(validation_problems(exc2), source) from None
+        raise MetadataError(validation_problems(exc), source) from None

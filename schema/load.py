@@ -17,7 +17,7 @@ from typing import Any
 
 from pydantic import ValidationError
 
-from .errors import MetadataError, describe_validation_error
+from .errors import MetadataError, validation_problems
 from .models import RunMeta
 
 __all__ = ["apply_overrides", "load_metadata", "parse_metadata", "read_metadata_file"]
@@ -85,7 +85,7 @@ def parse_metadata(data: Mapping[str, Any], source: str | None = None) -> RunMet
     try:
         return RunMeta.model_validate(dict(data))
     except ValidationError as exc:
-        raise MetadataError(describe_validation_error(exc), source) from None
+        raise MetadataError(validation_problems(exc), source) from None
 
 
 def load_metadata(path: str | Path, overrides: Iterable[str] = ()) -> RunMeta:

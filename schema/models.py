@@ -68,17 +68,25 @@ class _Drift(StrictModel):
         "symmetric",
         description="symmetric: every neighbour equally likely; asymmetric: biased towards +axis.",
     )
-    right_probability: float | None = Field(
-        None,
+    right_probability: float = Field(
+        0.5,
         description="Probability that a move goes to the +1 neighbour along its axis. "
         "Default 0.5 when symmetric, 1.0 (totally asymmetric) when asymmetric.",
     )
 
+    @model_validator(mode="before")
+    @classmethod
+    def _default_right_probability(cls, data: Any) -> Any:
+        """Fill ``right_probability`` from ``drift`` when it is not given."""
+        if isinstance(data, dict) and data.get("right_probability") is None:
+            data = {k: v for k, v in data.items() if k != "right_probability"}
+            if data.get("drift") == "asymmetric":
+                data["right_probability"] = 1.0
+        return data
+
     @model_validator(mode="after")
     def _check_drift(self) -> _Drift:
         p = self.right_probability
-        if p is None:
-            return self
         if not 0.0 <= p <= 1.0:
             raise PydanticCustomError(
                 "probability",
@@ -98,13 +106,6 @@ class _Drift(StrictModel):
                 "got 0.5",
             )
         return self
-
-    @property
-    def p_right(self) -> float:
-        """The right-hop probability with its default filled in."""
-        if self.right_probability is not None:
-            return self.right_probability
-        return 0.5 if self.drift == "symmetric" else 1.0
 
 
 class ZRPModel(_Drift):

@@ -5,27 +5,26 @@ from __future__ import annotations
 import contextlib
 import importlib.metadata
 import numbers
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from datetime import UTC, datetime
 from typing import Any, Literal
 
 import numpy as np
 
 from massarc.archive import Run, chunk_snapshots, create_run, mass_dtype, open_run
+from massarc.archive.progress import Progress
 from massarc.schema import InitialCondition, MetadataError, RunMeta, Simulator, ZRPModel
 
-from .dynamics import Dynamics, Replica, check_dynamics
+from .dynamics import Dynamics, Replica, guard_dynamics
 from .errors import SamplerError
 from .exact import SteadyStateSampler
-from .initial import INITIAL_KINDS, check_product_measure, initial_masses
+from .initial import INITIAL_KINDS, guard_product_measure, initial_masses
 from .times import check_times, replica_seeds
 
 __all__ = ["SIMULATOR_NAME", "simulate"]
 
 #: ``simulator.name`` recorded in the metadata of every run written here.
 SIMULATOR_NAME = "massarc.simulate"
-
-Progress = Callable[[int, int], None]
 
 
 def _version() -> str | None:
@@ -130,7 +129,7 @@ def simulate(
     overwrite
         Replace an existing archive at ``location``.
     progress
-        Called as ``progress(done, total)`` in replica-snapshots.
+        Called as ``progress(done, total, "snapshots")`` in replica-snapshots.
     pure
         Force the pure-Python event loop (True) or the numba one (False); default: numba
         when installed unless ``MASSARC_PURE=1``.
@@ -154,7 +153,7 @@ def simulate(
     >>> x.shape, x.sum(axis=2).tolist()[0]
     ((2, 6, 16), [12, 12, 12, 12, 12, 12])
     """
-    check_dynamics(meta)
+    guard_dynamics(meta)
     t = check_times(np.asarray(times))
     total = _total_mass(meta, mass)
     if seeds is None:
@@ -166,7 +165,7 @@ def simulate(
                 f"seeds: expected {replicas} integers >= 0 (one per replica); got {seeds!r}"
             )
     if exact or initial == "steady-state":
-        check_product_measure(meta)
+        guard_product_measure(meta)
     if exact:
         condition = InitialCondition(
             kind="steady-state",
@@ -239,7 +238,7 @@ def _run(
                 block[r] = rows.reshape(stop - start, *lattice)
                 done += stop - start
                 if progress is not None:
-                    progress(done, work)
+                    progress(done, work, "snapshots")
             if writer is not None:
                 writer.append(t[start:stop], block)
             else:

@@ -24,13 +24,13 @@ from massarc.schema.laws import hop_rates, max_hop_rate
 
 from .kernels import CMAM, ZRP, event_loop, neighbour_table
 
-__all__ = ["BATCH", "Dynamics", "Replica", "check_dynamics"]
+__all__ = ["BATCH", "Dynamics", "Replica", "guard_dynamics"]
 
 #: Attempts drawn and performed per call of the event loop.
 BATCH = 1 << 16
 
 
-def check_dynamics(meta: RunMeta) -> None:
+def guard_dynamics(meta: RunMeta) -> None:
     """Raise :class:`MetadataError` unless the reference dynamics can run ``meta``."""
     if not isinstance(meta.model, ZRPModel | CMAMModel):
         raise MetadataError(
@@ -52,7 +52,7 @@ class Dynamics:
     sites: int
     nbr: np.ndarray
     ndim: int
-    p_right: float
+    right_probability: float
     family: int
     rates: np.ndarray
     rate_max: float
@@ -61,8 +61,8 @@ class Dynamics:
 
     @classmethod
     def from_meta(cls, meta: RunMeta, mass: int) -> Dynamics:
-        """Build from validated metadata (see :func:`check_dynamics`) and the total mass."""
-        check_dynamics(meta)
+        """Build from validated metadata (see :func:`guard_dynamics`) and the total mass."""
+        guard_dynamics(meta)
         model = meta.model
         lattice = meta.lattice
         nbr = neighbour_table(list(lattice.sites), list(lattice.boundary))
@@ -70,7 +70,7 @@ class Dynamics:
             "sites": lattice.volume,
             "nbr": nbr,
             "ndim": lattice.ndim,
-            "p_right": float(model.p_right),
+            "right_probability": float(model.right_probability),
         }
         if isinstance(model, ZRPModel):
             # u(k) is constant beyond the table for `rate` and `rates`; for b it is not
@@ -150,7 +150,7 @@ class Replica:
                 out[k:k1],
                 d.nbr,
                 d.ndim,
-                d.p_right,
+                d.right_probability,
                 d.family,
                 d.rates,
                 d.rate_max,

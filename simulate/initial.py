@@ -9,13 +9,13 @@ from massarc.schema import MetadataError, RunMeta, ZRPModel
 from .errors import SamplerError
 from .exact import SteadyStateSampler
 
-__all__ = ["INITIAL_KINDS", "check_product_measure", "initial_masses"]
+__all__ = ["INITIAL_KINDS", "guard_product_measure", "initial_masses"]
 
 #: The starts the dynamics offers (values of ``run.initial.kind``).
 INITIAL_KINDS = ("random", "uniform", "condensed", "steady-state")
 
 
-def check_product_measure(meta: RunMeta) -> None:
+def guard_product_measure(meta: RunMeta) -> None:
     """Raise :class:`MetadataError` unless the canonical product measure is stationary.
 
     It is for a ZRP on a periodic lattice with any drift, and for a symmetric ZRP whatever
@@ -28,11 +28,11 @@ def check_product_measure(meta: RunMeta) -> None:
             [f"model.family: expected zrp for an exact steady state; got {model.family}"]
         )
     walls = "reflecting" in lattice.boundary
-    if walls and model.p_right != 0.5:
+    if walls and model.right_probability != 0.5:
         raise MetadataError(
             [
                 "lattice.boundary: expected periodic axes for a steady-state start of a "
-                f"driven ZRP (right_probability {model.p_right}); got reflecting walls"
+                f"driven ZRP (right_probability {model.right_probability}); got reflecting walls"
             ]
         )
 
@@ -72,7 +72,7 @@ def initial_masses(
         out[0] = mass
         return out
     if kind == "steady-state":
-        check_product_measure(meta)
+        guard_product_measure(meta)
         if sampler is None:
             assert isinstance(meta.model, ZRPModel)
             sampler = SteadyStateSampler(meta.model, n, mass)

@@ -14,8 +14,8 @@ uniform ``unif[i]`` in [0, 1). With ``x = unif[i] * rate_max``:
 * CMAM (``family == 1``): ``x < D`` moves the whole mass (``v = x / D``), otherwise one unit
   chips off (``v = (x - D) / w``).
 
-In 1D the move goes to the +1 neighbour when ``v < p_right``; in 2D ``2 v`` picks the axis
-(its integer part) and the direction (its fraction against ``p_right``). A move towards a
+In 1D the move goes to the +1 neighbour when ``v < right_probability``; in 2D ``2 v`` picks the axis
+(its integer part) and the direction (its fraction against ``right_probability``). A move towards a
 reflecting wall has neighbour -1 in the table and is suppressed: the mass stays.
 """
 
@@ -50,7 +50,7 @@ def event_loop_py(
     out: np.ndarray,
     nbr: np.ndarray,
     ndim: int,
-    p_right: float,
+    right_probability: float,
     family: int,
     rates: np.ndarray,
     rate_max: float,
@@ -92,13 +92,13 @@ def event_loop_py(
             v = (x - diffusion) / chipping
             amount = 1
         if ndim == 1:
-            col = 1 if v < p_right else 0
+            col = 1 if v < right_probability else 0
         else:
             v2 = v * 2.0
             axis = int(v2)
             if axis > 1:
                 axis = 1  # v rounded up to 1.0: keep the index in range
-            col = 2 * axis + (1 if v2 - axis < p_right else 0)
+            col = 2 * axis + (1 if v2 - axis < right_probability else 0)
         t = nbr[s, col]
         if t < 0:
             continue

@@ -46,7 +46,7 @@ def test_round_trip_is_bit_exact(tmp_path: Path, sites: tuple[int, ...]) -> None
     assert run.meta.run.total_mass == 60 and run.meta.run.density == 60 / np.prod(sites)
     # reading chunk by chunk gives the same data, one whole-lattice chunk at a time
     got = np.zeros_like(data)
-    for block in run.blocks():
+    for block in run.chunks():
         assert block.mass.shape[1:] == sites
         got[block.replica, block.start : block.stop] = block.mass
     assert np.array_equal(got, data)

@@ -157,6 +157,6 @@ def test_progress_spans_all_runs(tmp_path) -> None:
     a = write_run(tmp_path / "a.zarr", snapshots=30)
     b = write_run(tmp_path / "b.zarr", snapshots=20)
     seen = []
-    audit([a, b], checks=["conservation"], progress=lambda d, t: seen.append((d, t)))
+    audit([a, b], checks=["conservation"], progress=lambda d, t, _u: seen.append((d, t)))
     assert seen[-1] == (15, 15) and all(t == 15 for _, t in seen)
     assert [d for d, _ in seen] == sorted(d for d, _ in seen)

@@ -7,8 +7,8 @@ import sys
 
 from click.testing import CliRunner
 
-from massarc._version import __version__
 from massarc.cli import COMMANDS, cli
+from massarc.schema.version import __version__
 
 
 def test_every_listed_command_loads_under_its_name() -> None:

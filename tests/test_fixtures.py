@@ -20,9 +20,9 @@ FIXTURES = sorted(Path(__file__).parent.glob("fixtures/v*/*.zarr"))
 
 
 def test_there_are_fixtures_for_the_current_version() -> None:
-    from massarc.schema import FORMAT_VERSION
+    from massarc.schema import ARCHIVE_VERSION
 
-    assert any(p.parent.name == f"v{FORMAT_VERSION}" for p in FIXTURES)
+    assert any(p.parent.name == f"v{ARCHIVE_VERSION}" for p in FIXTURES)
 
 
 @pytest.mark.parametrize("path", FIXTURES, ids=lambda p: f"{p.parent.name}/{p.stem}")

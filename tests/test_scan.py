@@ -183,7 +183,11 @@ def test_chunks_in_flight_are_bounded_and_progress_is_reported(tmp_path) -> None
     run = open_run(write_run(tmp_path / "r.zarr", replicas=4, snapshots=100, chunk=5))
     calls = []
     res = scan(
-        run, [_Concurrency(run)], workers=3, in_flight=3, progress=lambda d, t: calls.append((d, t))
+        run,
+        [_Concurrency(run)],
+        workers=3,
+        in_flight=3,
+        progress=lambda d, t, _u: calls.append((d, t)),
     )
     assert 1 <= res.results["test-concurrency"] <= 3
     n = len(run.chunk_refs())

@@ -47,7 +47,7 @@ def test_minimal_toml_and_json_are_the_same_contract(tmp_path: Path) -> None:
     a = load_metadata(tmp_path / "meta.toml")
     b = load_metadata(tmp_path / "meta.json")
     assert a == b
-    assert a.model.family == "zrp" and a.model.b == 3.5 and a.model.p_right == 1.0
+    assert a.model.family == "zrp" and a.model.b == 3.5 and a.model.right_probability == 1.0
     assert a.lattice.boundary == ["periodic"] and a.lattice.volume == 200
     assert a.run.regime == "stationary"
 
@@ -56,7 +56,7 @@ def test_cmam_and_custom_variants() -> None:
     cmam = parse_metadata(
         {**MINIMAL, "model": {"family": "cmam", "diffusion": 1.0, "chipping": 2.0}}
     )
-    assert cmam.model.family == "cmam" and cmam.model.p_right == 0.5
+    assert cmam.model.family == "cmam" and cmam.model.right_probability == 0.5
     custom = parse_metadata(
         {**MINIMAL, "model": {"family": "custom", "description": "x", "parameters": {"q": 0.3}}}
     )

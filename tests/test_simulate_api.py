@@ -83,7 +83,7 @@ def test_an_interrupted_run_stays_incomplete(tmp_path: Path) -> None:
     meta = _meta({"family": "zrp", "rate": 1.0}, [2048])
     t = snapshot_times(0.01, 2100)  # two chunks of 2048 and 52 snapshots (uint8 masses)
 
-    def stop_in_second_chunk(done: int, total: int) -> None:
+    def stop_in_second_chunk(done: int, total: int | None, unit: str) -> None:
         if done > 2 * 2048:
             raise KeyboardInterrupt
 
@@ -99,7 +99,7 @@ def test_an_interrupted_run_stays_incomplete(tmp_path: Path) -> None:
 def test_progress_reaches_the_total() -> None:
     seen: list[tuple[int, int]] = []
     simulate(_meta(ZRP, [8]), [0.0, 1.0, 2.0], replicas=3, seed=0, mass=4,
-             progress=lambda d, n: seen.append((d, n)))  # fmt: skip
+             progress=lambda d, n, _u: seen.append((d, n)))  # fmt: skip
     assert seen[-1] == (9, 9) and [d for d, _ in seen] == sorted(d for d, _ in seen)
 
 

@@ -65,7 +65,7 @@ def test_sample_overrides_and_exact_mode(meta_file: Path, tmp_path: Path) -> Non
                      "--quiet")  # fmt: skip
     assert result.exit_code == 0, result.output
     run = massarc.open_run(out)
-    assert run.lattice_shape == (40,) and run.meta.model.b == 3.0
+    assert run.sites == (40,) and run.meta.model.b == 3.0
     assert run.meta.run.sampling == "log" and run.meta.run.initial.kind == "steady-state"
     assert np.all(run.read(1).sum(axis=1) == 30)
 

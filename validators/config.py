@@ -35,9 +35,9 @@ __all__ = [
     "FILE_NAME",
     "AuditSettings",
     "ConfigError",
-    "check_options",
     "find_config",
     "load_settings",
+    "parse_options",
     "parse_settings",
     "resolve_settings",
 ]
@@ -99,7 +99,7 @@ def _option_value(value: Any, default: Any, where: str) -> Any:
     return value
 
 
-def check_options(
+def parse_options(
     options: Mapping[str, Any],
     checks: Mapping[str, type[Check]] | None = None,
     where: str = "options",
@@ -108,7 +108,7 @@ def check_options(
     """Validate ``{check id: {option: value}}`` against the checks' declared options;
     errors name ``where`` + ``sep`` + the key path.
 
-    >>> check_options({"conservation": {"tolerance": 2}})
+    >>> parse_options({"conservation": {"tolerance": 2}})
     {'conservation': {'tolerance': 2}}
     """
     checks = available_checks() if checks is None else checks
@@ -155,7 +155,7 @@ def parse_settings(
     return AuditSettings(
         skip=_check_ids(skip, checks, f"{head}{prefix}skip"),
         strict=strict,
-        options=check_options(table, checks, f"{head}{prefix}checks"),
+        options=parse_options(table, checks, f"{head}{prefix}checks"),
         source=source,
     )
 
@@ -221,7 +221,7 @@ def _parse_sets(items: Iterable[str], checks: Mapping[str, type[Check]]) -> dict
             raise ConfigError(f"--set {item!r}: {'; '.join(exc.problems)}") from None
         for cid, opts in parsed.items():
             out.setdefault(cid, {}).update(opts)
-    return check_options(out, checks, "--set", " ")
+    return parse_options(out, checks, "--set", " ")
 
 
 def resolve_settings(

@@ -18,23 +18,22 @@ from __future__ import annotations
 import json
 import os
 import time
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Iterable, Mapping
 from typing import Any
 
-from massarc._version import __version__
 from massarc.archive import ArchiveError, Run, open_runs
+from massarc.archive.progress import Progress
 from massarc.archive.scan import ScanResult, Statistic, available_statistics, scan
-from massarc.archive.store import describe
-from massarc.schema.format import ATTRIBUTE_KEY, FORMAT_MAJOR, parse_version
+from massarc.archive.store import location_name
+from massarc.schema.spec import ARCHIVE_MAJOR, ATTRIBUTE_KEY, parse_version
+from massarc.schema.version import __version__
 
-from .config import ConfigError, check_options
+from .config import ConfigError, parse_options
 from .registry import Check, CheckContext, available_checks
 from .report.model import AuditReport, RunReport
 from .result import CheckResult, worst
 
 __all__ = ["audit", "open_for_audit"]
-
-Progress = Callable[[int, int], None]
 
 
 def _one_line(exc: BaseException) -> str:
@@ -54,7 +53,7 @@ def open_for_audit(location: str | os.PathLike[str] | Any) -> list[Run]:
         raise
     except Exception as exc:  # e.g. a zarr.json that is not JSON
         raise ArchiveError(
-            f"{describe(location)}: cannot open as a Zarr v3 group ({_one_line(exc)})"
+            f"{location_name(location)}: cannot open as a Zarr v3 group ({_one_line(exc)})"
         ) from None
     for run in runs:
         if run.header is not None:
@@ -65,9 +64,9 @@ def open_for_audit(location: str | os.PathLike[str] | Any) -> list[Run]:
             major, minor = parse_version(version)
         except ValueError:
             continue  # an unreadable version is a metadata problem: schema reports it
-        if major != FORMAT_MAJOR:
+        if major != ARCHIVE_MAJOR:
             raise ArchiveError(
-                f"{run.name}: format_version: expected {FORMAT_MAJOR}.x (this massarc); got "
+                f"{run.name}: format_version: expected {ARCHIVE_MAJOR}.x (this massarc); got "
                 f"{major}.{minor} (upgrade massarc to read it)"
             )
     return runs
@@ -218,7 +217,7 @@ def audit(
     strict
         Warnings count as failures.
     progress
-        ``progress(done, total)`` over the chunks of all runs.
+        ``progress(done, total, "chunks")`` over the chunks of all runs.
     workers
         Threads of the single pass (default: the CPUs available).
     config
@@ -231,7 +230,7 @@ def audit(
     registry = available_checks()
     chosen, skipped = _select(checks, skip, registry)
     classes = [registry[c] for c in chosen if c not in skipped]
-    opts = check_options(dict(options or {}), registry, "options")
+    opts = parse_options(dict(options or {}), registry, "options")
     opened: list[Run] = []
     for item in runs:
         opened.extend([item] if isinstance(item, Run) else open_for_audit(item))
@@ -242,9 +241,9 @@ def audit(
     for run, n_chunks in zip(opened, totals, strict=True):
         run_started = time.perf_counter()
 
-        def tick(done: int, _total: int, base: int = offset) -> None:
+        def tick(done: int, _total: int | None, _unit: str, base: int = offset) -> None:
             if progress is not None:
-                progress(base + done, grand)
+                progress(base + done, grand, "chunks")
 
         worker = _RunAudit(run, classes, opts)
         ran, res = worker.execute(strict, workers, tick)
@@ -257,7 +256,7 @@ def audit(
         ]
         offset += n_chunks
         if progress is not None:
-            progress(offset, grand)
+            progress(offset, grand, "chunks")
         reports.append(
             RunReport(
                 path=run.name,

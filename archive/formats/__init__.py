@@ -11,14 +11,14 @@ from .collection import collection_members, convert_collection
 from .convert import ConvertReport, convert
 from .registry import (
     ENTRY_POINT_GROUP,
-    Block,
+    Batch,
     Events,
     Format,
     Source,
     UnknownFormatError,
     available_formats,
-    describe_formats,
     detect_format,
+    format_listing,
     get_format,
     register_format,
 )
@@ -26,7 +26,7 @@ from .stream import resolve_metadata, write_source
 
 __all__ = [
     "ENTRY_POINT_GROUP",
-    "Block",
+    "Batch",
     "ConvertReport",
     "Events",
     "Format",
@@ -36,8 +36,8 @@ __all__ = [
     "collection_members",
     "convert",
     "convert_collection",
-    "describe_formats",
     "detect_format",
+    "format_listing",
     "get_format",
     "register_format",
     "resolve_metadata",

@@ -21,7 +21,7 @@ from typing import Any, BinaryIO
 import numpy as np
 
 from ..errors import DataError
-from .registry import Block
+from .registry import Batch
 
 __all__ = ["BLOCK_BYTES", "SequentialArray", "array_blocks", "lattice_axes"]
 
@@ -106,7 +106,7 @@ def array_blocks(
     chunk: int,
     *,
     series: Mapping[str, np.ndarray] | None = None,
-) -> Iterator[Block]:
+) -> Iterator[Batch]:
     """Blocks of ``arr`` with named ``axes`` (see the module docstring).
 
     ``series`` maps ``inflow``/``outflow`` to ``(replica, time)`` (or ``(time,)``) arrays.
@@ -130,7 +130,7 @@ def array_blocks(
                     idx[rep_ax] = r
                 idx[time_ax] = slice(a, b)
                 data = np.transpose(np.asarray(arr[tuple(idx)]), perm)
-                yield Block(
+                yield Batch(
                     times[a:b],
                     data,
                     replica=r,
@@ -146,7 +146,7 @@ def array_blocks(
         idx = [slice(None)] * len(axes)
         idx[time_ax] = slice(a, b)
         data = np.transpose(np.asarray(arr[tuple(idx)]), perm)
-        yield Block(
+        yield Batch(
             times[a:b],
             data,
             replica=None,

@@ -17,8 +17,8 @@ __all__ = [
     "as_bool",
     "as_float",
     "as_int",
-    "check_known",
     "default_axes",
+    "guard_options",
     "parse_axes",
     "parse_times",
 ]
@@ -27,7 +27,7 @@ _TRUE = {"1", "true", "yes", "on"}
 _FALSE = {"0", "false", "no", "off"}
 
 
-def check_known(options: Mapping[str, str], known: Mapping[str, str], what: str) -> None:
+def guard_options(options: Mapping[str, str], known: Mapping[str, str], what: str) -> None:
     """Raise for an option ``what`` (e.g. "reading npz") does not understand."""
     for key in options:
         if key not in known and not (key.startswith("attrs.") and "attrs.NAME" in known):

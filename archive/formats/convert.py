@@ -23,7 +23,7 @@ from ..reader import open_run
 from ..store import local_path
 from .registry import Format, Progress, detect_format, get_format
 from .stream import resolve_metadata, write_source
-from .zarr_run import pump_options
+from .zarr_run import archive_options
 
 __all__ = ["ConvertReport", "convert", "split_options"]
 
@@ -150,7 +150,7 @@ def convert(
                 writer.name,
                 run.n_replicas,
                 run.n_snapshots,
-                tuple(run.lattice_shape),
+                tuple(run.sites),
                 list(notes),
             )
         _place(tmp, dst_path)
@@ -184,7 +184,7 @@ def _to_archive(
             overwrite=overwrite,
             name=shown,
             progress=progress,
-            **pump_options(wopts),
+            **archive_options(wopts),
         )
         st = w.state
         return ConvertReport(

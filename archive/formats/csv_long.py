@@ -31,9 +31,9 @@ from massarc.schema import RunMeta
 from ..errors import DataError
 from ..reader import Run
 from ._lines import LineParser, LineReader, Rows, csv_columns, read_csv_head
-from ._options import check_known
+from ._options import guard_options
 from .csv_wide import replica_runs
-from .registry import Block, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source, register_format
 from .text import export_lines, meta_comment
 
 __all__ = ["CsvLongFormat"]
@@ -130,7 +130,7 @@ class CsvLongSource(Source):
         flat = coords[:, 0] if self.nsite == 1 else coords[:, 0] * lattice[1] + coords[:, 1]
         return np.stack([flat, mass], axis=1)
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         lattice = tuple(meta.lattice.sites)
         names = ("replica", "time") if self.lead == 2 else ("time",)
         parser = LineParser(
@@ -208,13 +208,13 @@ class CsvLongSource(Source):
         done[-1] = (last_rep[:-1], last_t[:-1], last_line[:-1], last_dense[:-1])
         return new_carry, done
 
-    def _emit(self, snap: Any, state: dict[str, int], done: int) -> Iterator[Block]:
+    def _emit(self, snap: Any, state: dict[str, int], done: int) -> Iterator[Batch]:
         g_rep, g_time, g_line, dense = snap
         if not len(g_rep):
             return
         lines = np.asarray(g_line)
         for r, a, b in replica_runs(np.asarray(g_rep, float), lines, self.name, state):
-            yield Block(np.asarray(g_time[a:b]), dense[a:b], replica=r, lines=lines[a:b], done=done)
+            yield Batch(np.asarray(g_time[a:b]), dense[a:b], replica=r, lines=lines[a:b], done=done)
 
 
 def _rows(lattice: tuple[int, ...], replica: int, times: np.ndarray, mass: np.ndarray) -> str:
@@ -246,14 +246,14 @@ class CsvLongFormat(Format):
         return cols[-1:] == [b"mass"] and b"time" in cols and (b"site" in cols or b"x" in cols)
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading csv-long")
+        guard_options(options, self.read_options, "reading csv-long")
         return CsvLongSource(Path(path))
 
     def write(
         self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
     ) -> list[str]:
-        check_known(options, self.write_options, "writing csv-long")
-        lattice = run.lattice_shape
+        guard_options(options, self.write_options, "writing csv-long")
+        lattice = run.sites
         header = "replica,time," + ("site" if len(lattice) == 1 else "y,x") + ",mass\n"
         export_lines(
             run,

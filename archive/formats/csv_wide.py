@@ -27,8 +27,8 @@ from massarc.schema import RunMeta
 from ..errors import DataError
 from ..reader import Run
 from ._lines import LineParser, LineReader, csv_columns, read_csv_head
-from ._options import check_known
-from .registry import Block, Events, Format, Progress, Source, register_format
+from ._options import guard_options
+from .registry import Batch, Events, Format, Progress, Source, register_format
 from .text import export_lines, meta_comment
 
 __all__ = ["CsvWideFormat", "replica_runs"]
@@ -94,7 +94,7 @@ class CsvWideSource(Source):
     def hints(self) -> dict[str, Any]:
         return self.head.meta
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         if self.width != meta.lattice.volume:
             raise DataError(
                 f"{self.name}: line {self.head.line}: metadata contradicts the data: "
@@ -123,7 +123,7 @@ class CsvWideSource(Source):
                     mass = rows.values.reshape(len(rows.counts), self.width)
                     reps = rows.lead[:, 0] if self.lead == 2 else np.zeros(len(rows.counts))
                     for r, a, b in replica_runs(reps, rows.lines, self.name, state):
-                        yield Block(
+                        yield Batch(
                             rows.lead[a:b, self.lead - 1],
                             mass[a:b],
                             replica=r,
@@ -153,14 +153,14 @@ class CsvWideFormat(Format):
         return cols[:3] == [b"replica", b"time", b"m0"] or cols[:2] == [b"time", b"m0"]
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading csv-wide")
+        guard_options(options, self.read_options, "reading csv-wide")
         return CsvWideSource(Path(path))
 
     def write(
         self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
     ) -> list[str]:
-        check_known(options, self.write_options, "writing csv-wide")
-        volume = int(np.prod(run.lattice_shape))
+        guard_options(options, self.write_options, "writing csv-wide")
+        volume = int(np.prod(run.sites))
         header = "replica,time," + ",".join(f"m{k}" for k in range(volume)) + "\n"
         export_lines(run, path, meta_comment(run) + header, _rows, progress, replica_lines=False)
         return []

@@ -38,8 +38,8 @@ from massarc.schema import RunMeta
 
 from ..errors import ArchiveError, DataError
 from ._lines import LineParser, LineReader, Rows, magic_of, read_preamble
-from ._options import as_bool, as_float, check_known, parse_times
-from .registry import Block, Events, Format, Source, register_format
+from ._options import as_bool, as_float, guard_options, parse_times
+from .registry import Batch, Events, Format, Source, register_format
 
 __all__ = ["EventsFormat"]
 
@@ -56,24 +56,24 @@ class _Replay:
         self.k = 0
         self.out: list[np.ndarray] = []
 
-    def start(self, replica: int, initial: np.ndarray) -> Iterator[Block]:
+    def start(self, replica: int, initial: np.ndarray) -> Iterator[Batch]:
         yield from self.finish()
         self.replica, self.state, self.k = replica, initial.astype(np.int64).copy(), 0
 
-    def _snap(self) -> Iterator[Block]:
+    def _snap(self) -> Iterator[Batch]:
         self.out.append(self.state.copy())
         self.k += 1
         if len(self.out) >= self.chunk:
             yield from self._flush()
 
-    def _flush(self) -> Iterator[Block]:
+    def _flush(self) -> Iterator[Batch]:
         if self.out:
             b = self.k
             a = b - len(self.out)
-            yield Block(self.grid[a:b], np.stack(self.out), replica=self.replica)
+            yield Batch(self.grid[a:b], np.stack(self.out), replica=self.replica)
             self.out = []
 
-    def finish(self) -> Iterator[Block]:
+    def finish(self) -> Iterator[Batch]:
         if self.replica >= 0:
             while self.k < len(self.grid):
                 yield from self._snap()
@@ -81,7 +81,7 @@ class _Replay:
 
     def apply(
         self, t: np.ndarray, src: np.ndarray, tgt: np.ndarray, amt: np.ndarray, lines: np.ndarray
-    ) -> Iterator[Block]:
+    ) -> Iterator[Batch]:
         upto = np.searchsorted(t, self.grid[self.k :], side="right")
         prev = 0
         for j in upto.tolist():
@@ -180,7 +180,7 @@ class EventsSource(Source):
                 last = max(last, float(rows.lead[:, 0].max()))
         return last
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         volume = meta.lattice.volume
         initial: list[np.ndarray] = []
         t0: float | None = None
@@ -300,5 +300,5 @@ class EventsFormat(Format):
         return magic_of(head) == MAGIC
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading events")
+        guard_options(options, self.read_options, "reading events")
         return EventsSource(Path(path), dict(options))

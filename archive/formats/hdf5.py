@@ -24,14 +24,14 @@ from typing import Any, ClassVar
 import numpy as np
 
 from massarc.schema import MetadataError, RunMeta, apply_overrides
-from massarc.schema.format import INFLOW, OUTFLOW
+from massarc.schema.spec import INFLOW, OUTFLOW
 
 from ..errors import DataError
 from ..reader import Run
 from ._arrays import array_blocks
-from ._options import check_known, parse_axes
+from ._options import guard_options, parse_axes
 from .npy import axes_for, times_for
-from .registry import Block, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source, register_format
 from .zarr_run import meta_dict
 
 __all__ = ["HDF5Format", "attr_value", "mapped_attrs"]
@@ -142,7 +142,7 @@ class HDF5Source(Source):
     def time_length(self, meta: RunMeta) -> int | None:
         return int(self.mass.shape[self._axes(meta).index("time")])
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         axes = self._axes(meta)
         n = int(self.mass.shape[axes.index("time")])
         key = self.options.get("time", "time")
@@ -182,7 +182,7 @@ class HDF5Format(Format):
         return head.startswith(HDF5_MAGIC)
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading hdf5")
+        guard_options(options, self.read_options, "reading hdf5")
         return HDF5Source(Path(path), dict(options))
 
     def write(
@@ -190,11 +190,11 @@ class HDF5Format(Format):
     ) -> list[str]:
         import h5py
 
-        check_known(options, self.write_options, "writing hdf5")
+        guard_options(options, self.write_options, "writing hdf5")
         comp = options.get("compression", "gzip")
         if comp not in ("gzip", "lzf", "none"):
             raise DataError(f"option compression: expected gzip, lzf or none; got {comp!r}")
-        lattice = run.lattice_shape
+        lattice = run.sites
         chunks = (1, max(1, min(run.chunk_snapshots, run.n_snapshots)), *lattice)
         names = ("replica", "time", *(("site",) if len(lattice) == 1 else ("y", "x")))
         total, done = run.n_replicas * run.n_snapshots, 0
@@ -215,7 +215,7 @@ class HDF5Format(Format):
                     f.create_dataset(key, data=val)
             if run.meta is not None:
                 f.attrs[META_ATTR] = json.dumps(meta_dict(run.meta))
-            for block in run.blocks():
+            for block in run.chunks():
                 ds[block.replica, block.start : block.stop] = block.mass
                 done += block.stop - block.start
                 if progress is not None:

@@ -31,7 +31,7 @@ from ..store import local_path
 from ..writer import RunWriter, create_run, resume_run
 from ._lines import LineParser, LineReader
 from .registry import Progress
-from .stream import Pump, archive_dtype, merge_dicts, resolve_metadata
+from .stream import BatchFeeder, archive_dtype, merge_dicts, resolve_metadata
 from .text import MAGIC, rows_to_block
 from .zarr_run import meta_dict
 
@@ -91,17 +91,17 @@ def ingest(
     stream: BinaryIO | int = open(src, "rb", buffering=0) if own else src  # noqa: SIM115
     label = name or (os.fspath(src) if own else "<stdin>")  # type: ignore[arg-type]
     writer: RunWriter | None = None
-    pump: Pump | None = None
+    pump: BatchFeeder | None = None
     try:
         path = local_path(dst_text)
         if resume and path is not None and not (path / "zarr.json").exists():
             resume = False  # killed before the archive began: start it (same command again)
         if resume:
-            # strict=False: the Pump's BlockChecker checks every block (file and line)
+            # strict=False: the BatchFeeder's BatchGuard checks every block (file and line)
             writer = resume_run(dst, commit_seconds=commit_seconds, strict=False)
             _check_resume_meta(writer, meta, overrides)
             writer.name = dst_text
-            pump = Pump(
+            pump = BatchFeeder(
                 writer,
                 label,
                 writer.chunk_snapshots or 1,
@@ -131,11 +131,11 @@ def ingest(
                             overwrite=overwrite,
                             dtype=dtype,
                             commit_seconds=commit_seconds,
-                            strict=False,  # the Pump's BlockChecker checks every block
+                            strict=False,  # the BatchFeeder's BatchGuard checks every block
                         )
                         writer.name = dst_text
                         chunk = writer.chunk_snapshots or 1
-                        pump = Pump(writer, label, chunk, progress=progress, unit="bytes")
+                        pump = BatchFeeder(writer, label, chunk, progress=progress, unit="bytes")
                     assert writer is not None
                     block = rows_to_block(rows, writer.meta, label, reader.bytes_done, state=width)
                     if last_replica is not None and rows.replica != last_replica:

@@ -24,15 +24,15 @@ from typing import Any, ClassVar
 import numpy as np
 
 from massarc.schema import RunMeta
-from massarc.schema.format import INFLOW, OUTFLOW
+from massarc.schema.spec import INFLOW, OUTFLOW
 
 from ..errors import DataError
 from ..reader import Run
 from ._arrays import array_blocks, lattice_axes
-from ._options import check_known
+from ._options import guard_options
 from .hdf5 import HDF5_MAGIC, META_ATTR, json_attr, mapped_attrs
 from .npy import times_for
-from .registry import Block, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source, register_format
 from .zarr_run import meta_dict
 
 __all__ = ["NetCDFFormat"]
@@ -135,7 +135,7 @@ class NetCDFSource(Source):
     def time_length(self, meta: RunMeta) -> int | None:
         return int(self.ds.sizes[self.time_dim])
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         axes = self._axes(meta)
         n = int(self.ds.sizes[self.time_dim])
         stored = self.ds[self.time_dim].values if self.time_dim in self.ds.coords else None
@@ -178,7 +178,7 @@ class NetCDFFormat(Format):
     write_options: ClassVar[dict[str, str]] = {"compression": "gzip (default) or none"}
     writable = True
     #: A NetCDF-4 file is an HDF5 file too; this sniff is the more specific one.
-    specific = 1
+    sniff_priority = 1
 
     def sniff(self, head: bytes, path: Path) -> bool:
         if head.startswith(_CLASSIC):
@@ -193,7 +193,7 @@ class NetCDFFormat(Format):
             )
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading netcdf")
+        guard_options(options, self.read_options, "reading netcdf")
         return NetCDFSource(Path(path), dict(options))
 
     def write(
@@ -202,11 +202,11 @@ class NetCDFFormat(Format):
         import dask.array as da
         import xarray as xr
 
-        check_known(options, self.write_options, "writing netcdf")
+        guard_options(options, self.write_options, "writing netcdf")
         comp = options.get("compression", "gzip")
         if comp not in ("gzip", "none"):
             raise DataError(f"option compression: expected gzip or none; got {comp!r}")
-        lattice = run.lattice_shape
+        lattice = run.sites
         dims = ("replica", "time", *lattice_axes(len(lattice)))
         tc = max(1, min(run.chunk_snapshots, run.n_snapshots))
         chunks = (1, tc, *lattice)

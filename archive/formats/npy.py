@@ -26,8 +26,8 @@ from massarc.schema import RunMeta
 from ..errors import DataError
 from ..reader import Run
 from ._arrays import array_blocks
-from ._options import check_known, default_axes, parse_axes, parse_times
-from .registry import Block, Events, Format, Progress, Source, register_format
+from ._options import default_axes, guard_options, parse_axes, parse_times
+from .registry import Batch, Events, Format, Progress, Source, register_format
 
 __all__ = ["NpyFormat", "axes_for", "read_npy_header", "times_for", "write_npy_stream"]
 
@@ -60,7 +60,7 @@ def write_npy_stream(fp: BinaryIO, run: Run, progress: Progress | None = None) -
     np.lib.format.write_array_header_2_0(fp, header)
     done = 0
     total = run.n_replicas * run.n_snapshots
-    for block in run.blocks():
+    for block in run.chunks():
         fp.write(np.ascontiguousarray(block.mass).tobytes())
         done += block.stop - block.start
         if progress is not None:
@@ -134,7 +134,7 @@ class NpySource(Source):
         axes = axes_for(self.array.shape, meta, self.options.get("order"), self.name)
         return int(self.array.shape[axes.index("time")])
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         arr = self.array
         axes = axes_for(arr.shape, meta, self.options.get("order"), self.name)
         n = int(arr.shape[axes.index("time")])
@@ -163,13 +163,13 @@ class NpyFormat(Format):
         return head.startswith(NPY_MAGIC)
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading npy")
+        guard_options(options, self.read_options, "reading npy")
         return NpySource(Path(path), dict(options))
 
     def write(
         self, run: Run, path: Path, *, progress: Progress | None = None, **options: Any
     ) -> list[str]:
-        check_known(options, self.write_options, "writing npy")
+        guard_options(options, self.write_options, "writing npy")
         with open(path, "wb") as f:
             write_npy_stream(f, run, progress)
         notes = [

@@ -25,14 +25,14 @@ from typing import Any, ClassVar
 import numpy as np
 
 from massarc.schema import MetadataError, RunMeta
-from massarc.schema.format import INFLOW, OUTFLOW
+from massarc.schema.spec import INFLOW, OUTFLOW
 
 from ..errors import DataError
 from ..reader import Run
 from ._arrays import SequentialArray, array_blocks
-from ._options import as_bool, check_known
+from ._options import as_bool, guard_options
 from .npy import axes_for, read_npy_header, times_for, write_npy_stream
-from .registry import Block, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source, register_format
 from .zarr_run import meta_dict
 
 __all__ = ["NpzFormat"]
@@ -123,7 +123,7 @@ class NpzSource(Source):
         seq = SequentialArray(fp, self._shape(), self.mass_dtype, label)
         return seq
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         axes = self._axes(meta)
         shape = self._shape()
         n = int(shape[axes.index("time")])
@@ -176,13 +176,13 @@ class NpzFormat(Format):
         return name.endswith(b".npy")
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading npz")
+        guard_options(options, self.read_options, "reading npz")
         return NpzSource(Path(path), dict(options))
 
     def write(
         self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
     ) -> list[str]:
-        check_known(options, self.write_options, "writing npz")
+        guard_options(options, self.write_options, "writing npz")
         deflate = as_bool(options.get("compress", "false"), "compress")
         method = zipfile.ZIP_DEFLATED if deflate else zipfile.ZIP_STORED
         small = {"time": run.times}

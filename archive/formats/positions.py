@@ -30,8 +30,8 @@ from massarc.schema import RunMeta
 from ..errors import DataError
 from ..reader import Run
 from ._lines import LineParser, LineReader, Rows, magic_of, read_preamble
-from ._options import check_known
-from .registry import Block, Events, Format, Progress, Source, register_format
+from ._options import guard_options
+from .registry import Batch, Events, Format, Progress, Source, register_format
 from .text import export_lines, header_lines
 
 __all__ = ["PositionsFormat", "occupations", "positions_lines"]
@@ -77,14 +77,14 @@ class PositionsSource(Source):
     def hints(self) -> dict[str, Any]:
         return read_preamble(self.path, self.name)
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         parser = LineParser(self.name, MAGIC, value_name="site index", site_of=False)
         volume = meta.lattice.volume
         with open(self.path, "rb") as f:
             reader = LineReader(f, self.name)
             for buf, first, _ in reader:
                 for rows in parser.parse(buf, first):
-                    yield Block(
+                    yield Batch(
                         rows.lead[:, 0],
                         occupations(rows, volume, self.name),
                         replica=rows.replica,
@@ -104,12 +104,12 @@ class PositionsFormat(Format):
         return magic_of(head) == MAGIC
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading positions")
+        guard_options(options, self.read_options, "reading positions")
         return PositionsSource(Path(path))
 
     def write(
         self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
     ) -> list[str]:
-        check_known(options, self.write_options, "writing positions")
+        guard_options(options, self.write_options, "writing positions")
         export_lines(run, path, header_lines(MAGIC, run), positions_lines, progress)
         return []

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import os
 from abc import ABC, abstractmethod
-from collections.abc import Callable, Iterator, Mapping
+from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 from importlib.metadata import entry_points
 from pathlib import Path
@@ -31,19 +31,20 @@ from massarc.schema import RunMeta
 
 from ..errors import ArchiveError
 from ..plugins import load_plugins
+from ..progress import Progress
 from ..reader import Run
 
 __all__ = [
     "ENTRY_POINT_GROUP",
-    "Block",
+    "Batch",
     "Events",
     "Format",
     "Progress",
     "Source",
     "UnknownFormatError",
     "available_formats",
-    "describe_formats",
     "detect_format",
+    "format_listing",
     "get_format",
     "register_format",
 ]
@@ -52,16 +53,13 @@ ENTRY_POINT_GROUP = "massarc.formats"
 #: Bytes of a file handed to :meth:`Format.sniff`.
 HEAD_BYTES = 65536
 
-#: ``progress(done, total, unit)``: ``unit`` is ``"bytes"`` or ``"snapshots"``.
-Progress = Callable[[int, int | None, str], None]
-
 
 class UnknownFormatError(ArchiveError):
     """No registered format matches a file, or a format name is not known."""
 
 
 @dataclass(frozen=True)
-class Block:
+class Batch:
     """Snapshots read from a source, in the order the archive stores them.
 
     ``replica=r``: ``mass`` is ``(n, *lattice)`` (a source may yield it flat, ``(n, sites)``,
@@ -131,7 +129,7 @@ class Source(ABC):
         return self.snapshots
 
     @abstractmethod
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         """Snapshot blocks (and event-log stretches), replica after replica or in
         lockstep; ``chunk`` is the archive's chunk length, a good block length."""
 
@@ -170,7 +168,7 @@ class Format(ABC):
     readable: ClassVar[bool] = True
     writable: ClassVar[bool] = False
     #: Among formats whose sniff matches the same file, the most specific wins.
-    specific: ClassVar[int] = 0
+    sniff_priority: ClassVar[int] = 0
 
     def sniff(self, head: bytes, path: Path) -> bool:
         """True when the content (``head``: the first bytes of a file, empty for a
@@ -284,8 +282,8 @@ def detect_format(path: str | os.PathLike[str], *, role: str = "source") -> Form
         head = _head(p)
         sniffed = [cls for cls in formats if cls.readable and _safe_sniff(cls, head, p)]
         if sniffed:
-            top = max(cls.specific for cls in sniffed)
-            sniffed = [cls for cls in sniffed if cls.specific == top]
+            top = max(cls.sniff_priority for cls in sniffed)
+            sniffed = [cls for cls in sniffed if cls.sniff_priority == top]
         if len(sniffed) > 1:
             sniffed = _by_suffix(text, sniffed) or sniffed
         if sniffed:
@@ -313,7 +311,7 @@ def _safe_sniff(cls: type[Format], head: bytes, path: Path) -> bool:
         return False
 
 
-def describe_formats() -> list[dict[str, Any]]:
+def format_listing() -> list[dict[str, Any]]:
     """One row per format for ``--list-formats``: name, suffixes, modes, description,
     options."""
     rows = []

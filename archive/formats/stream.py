@@ -1,7 +1,7 @@
 """The shared streaming path: a :class:`~.registry.Source` into a run archive.
 
 Every importer ends here. :func:`resolve_metadata` merges what the file carries with the
-user's metadata file and ``--set`` overrides; :class:`Pump` validates each block (naming
+user's metadata file and ``--set`` overrides; :class:`BatchFeeder` validates each block (naming
 the input, line and (replica, snapshot, site) in its errors), cuts the stream into
 chunk-aligned appends so that every chunk is encoded once, and commits when a live source
 goes idle. Memory: one block of the source plus at most one chunk per replica.
@@ -23,10 +23,10 @@ from ..errors import DataError
 from ..layout import chunk_snapshots, mass_dtype, sentinel
 from ..store import Location
 from ..writer import RunWriter, create_run
-from ._check import BlockChecker
-from .registry import Block, Events, Progress, Source
+from ._guard import BatchGuard
+from .registry import Batch, Events, Progress, Source
 
-__all__ = ["Pump", "archive_dtype", "merge_dicts", "resolve_metadata", "write_source"]
+__all__ = ["BatchFeeder", "archive_dtype", "merge_dicts", "resolve_metadata", "write_source"]
 
 
 def merge_dicts(base: Mapping[str, Any], top: Mapping[str, Any]) -> dict[str, Any]:
@@ -87,7 +87,7 @@ def resolve_metadata(
 
 
 def archive_dtype(
-    meta: RunMeta, source_dtype: np.dtype | None, max_mass: int | None, first: Block | None
+    meta: RunMeta, source_dtype: np.dtype | None, max_mass: int | None, first: Batch | None
 ) -> np.dtype:
     """The archive's mass dtype, chosen up front so that chunk boundaries are known.
 
@@ -113,7 +113,7 @@ def archive_dtype(
     return mass_dtype(int(np.iinfo(np.uint32).max) - 1)
 
 
-class Pump:
+class BatchFeeder:
     """Feed checked, chunk-aligned blocks into a writer.
 
     ``skip_committed``: drop input snapshots the (resumed) archive already holds, matching
@@ -140,7 +140,7 @@ class Pump:
         self._state = st
         self._skip = skip_committed
         limit = sentinel(writer.dtype) if writer.dtype is not None else None
-        self.checker = BlockChecker(
+        self.checker = BatchGuard(
             source_name,
             writer.meta,
             limit,
@@ -168,7 +168,7 @@ class Pump:
             return st.open_replica
         return 0
 
-    def _drop_committed(self, block: Block, start: int, n: int) -> int:
+    def _drop_committed(self, block: Batch, start: int, n: int) -> int:
         """How many of the block's snapshots the archive holds already (their times were
         checked against the archive's by the checker)."""
         rep = 0 if block.replica is None else block.replica
@@ -187,7 +187,7 @@ class Pump:
 
     # -- feeding -------------------------------------------------------------------------
 
-    def feed(self, item: Block | Events) -> None:
+    def feed(self, item: Batch | Events) -> None:
         if isinstance(item, Events):
             self._drain()
             self.writer.append_events(
@@ -306,16 +306,16 @@ class Pump:
             )
 
 
-def _peek(it: Iterator[Block | Events]) -> tuple[Block | None, Iterator[Block | Events]]:
-    head: list[Block | Events] = []
-    first: Block | None = None
+def _peek(it: Iterator[Batch | Events]) -> tuple[Batch | None, Iterator[Batch | Events]]:
+    head: list[Batch | Events] = []
+    first: Batch | None = None
     for item in it:
         head.append(item)
-        if isinstance(item, Block):
+        if isinstance(item, Batch):
             first = item
             break
 
-    def chained() -> Iterator[Block | Events]:
+    def chained() -> Iterator[Batch | Events]:
         yield from head
         yield from it
 
@@ -342,16 +342,16 @@ def write_source(
     lattice = tuple(meta.lattice.sites)
     hint = source.time_length(meta)
     dtype = archive_dtype(meta, source.dtype, max_mass, None)
-    items: Iterator[Block | Events] = iter(
-        source.blocks(meta, chunk_snapshots(lattice, dtype, hint))
+    items: Iterator[Batch | Events] = iter(
+        source.batches(meta, chunk_snapshots(lattice, dtype, hint))
     )
     guessing = max_mass is None and source.dtype is None and meta.run.total_mass is None
     if guessing and meta.lattice.closed:
         first, items = _peek(items)
         if first is not None:
-            BlockChecker(source.name, meta, None).check(first)  # report bad data first
+            BatchGuard(source.name, meta, None).check(first)  # report bad data first
         dtype = archive_dtype(meta, None, None, first)
-    # strict=False: every block passes the Pump's BlockChecker first, which makes the
+    # strict=False: every block passes the BatchFeeder's BatchGuard first, which makes the
     # writer's checks with messages naming the input file and line; no second scan
     writer = create_run(
         location,
@@ -363,7 +363,7 @@ def write_source(
         strict=False,
     )
     writer.name = name or writer.name
-    pump = Pump(
+    pump = BatchFeeder(
         writer,
         source.name,
         writer.chunk_snapshots,

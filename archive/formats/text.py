@@ -37,8 +37,8 @@ from massarc.schema import RunMeta
 from ..errors import DataError
 from ..reader import Run
 from ._lines import META_PREFIX, LineParser, LineReader, Rows, magic_of, read_preamble
-from ._options import check_known
-from .registry import Block, Events, Format, Progress, Source, register_format
+from ._options import guard_options
+from .registry import Batch, Events, Format, Progress, Source, register_format
 from .zarr_run import meta_dict
 
 __all__ = [
@@ -60,7 +60,7 @@ def rows_to_block(
     done: int | None = None,
     commit: bool = False,
     state: dict[str, int] | None = None,
-) -> Block:
+) -> Batch:
     """Masses ``(n, sites)`` of rows of the text format; ragged lines are errors.
 
     ``state`` remembers the width and the line that set it across calls.
@@ -84,7 +84,7 @@ def rows_to_block(
             f"line {state['line']}); got {int(counts[i])} (a ragged or truncated line)"
         )
     mass = rows.values.reshape(len(counts), width)
-    return Block(
+    return Batch(
         rows.lead[:, 0], mass, replica=rows.replica, lines=rows.lines, done=done, commit=commit
     )
 
@@ -100,7 +100,7 @@ class TextSource(Source):
     def hints(self) -> dict[str, Any]:
         return read_preamble(self.path, self.name)
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         parser = LineParser(self.name, MAGIC)
         state: dict[str, int] = {}
         with open(self.path, "rb") as f:
@@ -146,7 +146,7 @@ def export_lines(
     done = 0
     with open(path, "w", encoding="utf-8", newline="\n") as f:
         f.write(header)
-        for block in run.blocks():
+        for block in run.chunks():
             if replica_lines and block.start == 0:
                 f.write(f"# replica {block.replica}\n")
             f.write(fmt(block.replica, times[block.start : block.stop], block.mass))
@@ -190,13 +190,13 @@ class TextFormat(Format):
         return looks_numeric(head)
 
     def read(self, path: Path | str, **options: str) -> Source:
-        check_known(options, self.read_options, "reading text")
+        guard_options(options, self.read_options, "reading text")
         return TextSource(Path(path))
 
     def write(
         self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
     ) -> list[str]:
-        check_known(options, self.write_options, "writing text")
+        guard_options(options, self.write_options, "writing text")
         export_lines(run, path, header_lines(MAGIC, run), text_lines, progress)
         notes = []
         if run.series("inflow") is not None or run.series("outflow") is not None:

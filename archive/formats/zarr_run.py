@@ -16,11 +16,11 @@ from typing import Any, ClassVar
 import numpy as np
 
 from massarc.schema import RunMeta
-from massarc.schema.format import ATTRIBUTE_KEY, INFLOW, OUTFLOW
+from massarc.schema.spec import ATTRIBUTE_KEY, INFLOW, OUTFLOW
 
 from ..reader import Run, open_run
-from ._options import as_int, check_known
-from .registry import Block, Events, Format, Progress, Source, register_format
+from ._options import as_int, guard_options
+from .registry import Batch, Events, Format, Progress, Source, register_format
 
 __all__ = ["RunSource", "ZarrFormat"]
 
@@ -52,15 +52,15 @@ class RunSource(Source):
     def hints(self) -> dict[str, Any]:
         return meta_dict(self.run.meta) if self.run.meta is not None else {}
 
-    def blocks(self, meta: RunMeta, chunk: int) -> Iterator[Block | Events]:
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         run = self.run
         times = run.times
         series = {k: run.series(k) for k in (INFLOW, OUTFLOW)}
         series = {k: v for k, v in series.items() if v is not None}
         done = 0
-        for b in run.blocks():
+        for b in run.chunks():
             done += b.stop - b.start
-            yield Block(
+            yield Batch(
                 times[b.start : b.stop],
                 b.mass,
                 replica=b.replica,
@@ -110,7 +110,7 @@ class ZarrFormat(Format):
         return False
 
     def read(self, path: Path, **options: str) -> Source:
-        check_known(options, self.read_options, "reading zarr")
+        guard_options(options, self.read_options, "reading zarr")
         return RunSource(open_run(path))
 
     def write(
@@ -118,13 +118,13 @@ class ZarrFormat(Format):
     ) -> list[str]:
         from .stream import write_source
 
-        check_known(options, self.write_options, "writing zarr")
+        guard_options(options, self.write_options, "writing zarr")
         source = RunSource(run)
-        write_source(source, path, run.meta, progress=progress, **pump_options(options))
+        write_source(source, path, run.meta, progress=progress, **archive_options(options))
         return list(source.notes)
 
 
-def pump_options(options: dict[str, str]) -> dict[str, Any]:
+def archive_options(options: dict[str, str]) -> dict[str, Any]:
     """``max-mass`` and ``clevel`` as keyword arguments of :func:`.stream.write_source`."""
     out: dict[str, Any] = {}
     if "max-mass" in options:

@@ -5,11 +5,11 @@ negative (or fractional) values fall in bin 0, so that every (site, snapshot) is
 once. The loop is shared with the ``snapshots`` statistic when both run in one pass.
 
 >>> import numpy as np
->>> from massarc.archive import Block
+>>> from massarc.archive import Chunk
 >>> from types import SimpleNamespace
 >>> run = SimpleNamespace(n_replicas=1, n_snapshots=2, dtype=np.dtype("uint8"))
 >>> stat = HistogramStatistic(run, bins=4, blocks=1)
->>> block = Block(0, 0, 2, np.array([[1, 0, 3], [2, 9, 0]], np.uint8))
+>>> block = Chunk(0, 0, 2, np.array([[1, 0, 3], [2, 9, 0]], np.uint8))
 >>> stat.merge(block, stat.chunk(block))
 >>> stat.finish([]).counts.tolist()   # masses 0, 1, 2 and >= 3
 [[[2, 1, 1, 2]]]
@@ -22,7 +22,7 @@ from typing import Any
 
 import numpy as np
 
-from ..reader import Block, ChunkRef
+from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic, register_statistic
 from ._kernels import Plan, reduce_block
 
@@ -37,7 +37,7 @@ DEFAULT_BLOCKS = 256
 @dataclass(frozen=True)
 class HistogramStats:
     """``counts[r, b, m]``: number of (site, snapshot) pairs of replica r in block b holding
-    mass m, for m < ``top``; ``counts[r, b, top]`` counts masses >= ``top``. Block b spans
+    mass m, for m < ``top``; ``counts[r, b, top]`` counts masses >= ``top``. Chunk b spans
     snapshots ``edges[b] <= t < edges[b+1]``. ``valid[r, b]`` is False when part of the block
     was unreadable (its counts are then partial)."""
 
@@ -79,7 +79,7 @@ class HistogramStatistic(Statistic):
         #: True once a ``snapshots`` statistic shares its loop (see SnapshotStatistic.prepare).
         self.fused = False
 
-    def chunk(self, block: Block) -> Any:
+    def chunk(self, block: Chunk) -> Any:
         red = reduce_block(block, self.plan)
         return red.hist_first, red.hist
 

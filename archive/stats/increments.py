@@ -44,7 +44,7 @@ from typing import Any
 
 import numpy as np
 
-from ..reader import Block, ChunkRef
+from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic, register_statistic
 from .histogram import block_edges
 
@@ -288,7 +288,7 @@ class IncrementStatistic(Statistic):
 
     def __init__(self, run: Any, **options: Any) -> None:
         super().__init__(run, **options)
-        shape = tuple(run.lattice_shape)
+        shape = tuple(run.sites)
         positions = int(options.get("positions", 32))
         lines = int(options.get("lines", 16))
         if positions < 2 or lines < 1:
@@ -334,7 +334,7 @@ class IncrementStatistic(Statistic):
             if acc is not None:
                 acc[replica, sl] += part
 
-    def chunk(self, block: Block) -> Any:
+    def chunk(self, block: Chunk) -> Any:
         return self._reduce(block.mass, block.start)
 
     def merge(self, ref: ChunkRef, partial: Any) -> None:

@@ -6,11 +6,11 @@ located (see :mod:`massarc.archive.stats._kernels` for the exact semantics). Whe
 ``histogram`` statistic runs in the same pass, both share one fused loop over each chunk.
 
 >>> import numpy as np
->>> from massarc.archive import Block
+>>> from massarc.archive import Chunk
 >>> from types import SimpleNamespace
 >>> run = SimpleNamespace(n_replicas=1, n_snapshots=2, dtype=np.dtype("uint8"))
 >>> stat = SnapshotStatistic(run)
->>> block = Block(0, 0, 2, np.array([[1, 0, 3], [2, 2, 0]], np.uint8))
+>>> block = Chunk(0, 0, 2, np.array([[1, 0, 3], [2, 2, 0]], np.uint8))
 >>> stat.merge(block, stat.chunk(block))
 >>> stat.finish([]).total.tolist()
 [[4, 4]]
@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 
 from ..layout import sentinel
-from ..reader import Block, ChunkRef
+from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic, register_statistic
 from ._kernels import Plan, reduce_block
 
@@ -91,7 +91,7 @@ class SnapshotStatistic(Statistic):
                 peer.plan, peer.fused = self.plan, True
                 return
 
-    def chunk(self, block: Block) -> Any:
+    def chunk(self, block: Chunk) -> Any:
         red = reduce_block(block, self.plan)
         sites = int(np.prod(block.mass.shape[1:]))
 

@@ -9,7 +9,7 @@ from typing import Any
 
 import click
 
-from massarc._version import __version__
+from massarc.schema.version import __version__
 
 __all__ = ["COMMANDS", "cli", "main"]
 
@@ -20,7 +20,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "convert": ("convert", "Convert runs between formats, into or out of an archive."),
     "ingest": ("ingest", "Archive a run live from a simulator's text output."),
     "sample": ("sample", "Simulate a reference ZRP or CMAM run into an archive."),
-    "schema": ("schema_cmd", "Print the JSON Schema of run metadata."),
+    "schema": ("schema", "Print the JSON Schema of run metadata."),
 }
 
 

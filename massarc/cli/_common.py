@@ -3,13 +3,14 @@
 from __future__ import annotations
 
 import sys
-from collections.abc import Callable, Iterator
+from collections.abc import Iterator
 from contextlib import contextmanager
-from typing import NoReturn
+from typing import Any, NoReturn
 
 import click
 
 from massarc.archive import ArchiveError
+from massarc.archive.progress import Progress
 from massarc.schema import MetadataError
 
 __all__ = ["EXIT_BAD_INPUT", "bad_input", "die", "progress_bar"]
@@ -34,25 +35,46 @@ def bad_input(command: str) -> Iterator[None]:
 
 
 @contextmanager
-def progress_bar(
-    description: str, total: float | None, *, quiet: bool = False, unit: str = ""
-) -> Iterator[Callable[[float], None]]:
-    """A rich progress bar on stderr, shown only when stderr is a terminal and not quiet.
+def progress_bar(label: str, *, quiet: bool = False) -> Iterator[Progress]:
+    """The one progress bar of the CLI: rich, on stderr, only on a terminal and not quiet.
 
-    Yields ``advance(done)`` that sets the completed amount.
+    Yields a :data:`~massarc.archive.progress.Progress` callback. The bar is created on
+    the first report, so that the total and the unit (chunks, snapshots or bytes) may
+    come late; bytes are shown as sizes, other units as counts.
     """
     if quiet or not sys.stderr.isatty():
-        yield lambda done: None
+        yield lambda done, total, unit: None
         return
     from rich.console import Console
-    from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+    from rich.progress import (
+        BarColumn,
+        DownloadColumn,
+        MofNCompleteColumn,
+        TextColumn,
+        TimeRemainingColumn,
+    )
+    from rich.progress import Progress as RichProgress
 
-    columns = [
-        TextColumn("{task.description}"),
-        BarColumn(),
-        TextColumn("{task.completed:.0f}/{task.total:.0f} " + unit),
-        TimeRemainingColumn(),
-    ]
-    with Progress(*columns, console=Console(stderr=True), transient=True) as bar:
-        task = bar.add_task(description, total=total)
-        yield lambda done: bar.update(task, completed=done)
+    state: dict[str, Any] = {}
+
+    def report(done: int, total: int | None, unit: str) -> None:
+        if "bar" not in state:
+            amount = DownloadColumn() if unit == "bytes" else MofNCompleteColumn()
+            bar = RichProgress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                amount,
+                TextColumn("" if unit == "bytes" else unit),
+                TimeRemainingColumn(),
+                console=Console(stderr=True),
+                transient=True,
+            )
+            bar.start()
+            state["bar"], state["task"] = bar, bar.add_task(label, total=total)
+        state["bar"].update(state["task"], completed=done, total=total)
+
+    try:
+        yield report
+    finally:
+        if "bar" in state:
+            state["bar"].stop()

@@ -111,8 +111,7 @@ def command(
     with bad_input(_NAME):
         for location in runs:
             opened.extend(open_for_audit(location))
-    total = sum(len(r.chunk_refs()) for r in opened)
-    with progress_bar("auditing", total, quiet=quiet, unit="chunks") as advance:
+    with progress_bar("auditing", quiet=quiet) as progress:
         try:
             report = audit(
                 opened,
@@ -120,7 +119,7 @@ def command(
                 skip=settings.skip,
                 options=settings.options,
                 strict=settings.strict,
-                progress=lambda done, _total: advance(done),
+                progress=progress,
                 workers=workers,
                 config=settings.source,
             )

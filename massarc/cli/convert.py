@@ -5,9 +5,6 @@ The command parses options and reports; the work is :func:`massarc.archive.forma
 
 from __future__ import annotations
 
-import sys
-from collections.abc import Iterator
-from contextlib import contextmanager
 from typing import Any
 
 import click
@@ -16,55 +13,12 @@ from massarc.archive.formats import (
     collection_members,
     convert,
     convert_collection,
-    describe_formats,
+    format_listing,
 )
-from massarc.archive.formats.registry import Progress
 
-from ._common import bad_input, die
+from ._common import bad_input, die, progress_bar
 
-__all__ = ["command", "key_values", "metadata_options", "transfer_progress"]
-
-
-@contextmanager
-def transfer_progress(label: str, quiet: bool) -> Iterator[Progress]:
-    """A rich progress bar on stderr (only on a terminal and not quiet), created on the
-    first report, so that the total and unit (bytes or snapshots) can come late."""
-    if quiet or not sys.stderr.isatty():
-        yield lambda done, total, unit: None
-        return
-    from rich.console import Console
-    from rich.progress import (
-        BarColumn,
-        DownloadColumn,
-        MofNCompleteColumn,
-        Progress,
-        TextColumn,
-        TimeRemainingColumn,
-    )
-
-    state: dict[str, object] = {}
-
-    def report(done: int, total: int | None, unit: str) -> None:
-        if "bar" not in state:
-            amount = DownloadColumn() if unit == "bytes" else MofNCompleteColumn()
-            bar = Progress(
-                TextColumn("{task.description}"),
-                BarColumn(),
-                amount,
-                TimeRemainingColumn(),
-                console=Console(stderr=True),
-                transient=True,
-            )
-            bar.start()
-            state["bar"], state["task"] = bar, bar.add_task(label, total=total)
-        bar = state["bar"]
-        bar.update(state["task"], completed=done, total=total)  # type: ignore[attr-defined]
-
-    try:
-        yield report
-    finally:
-        if "bar" in state:
-            state["bar"].stop()  # type: ignore[attr-defined]
+__all__ = ["command", "key_values", "metadata_options"]
 
 
 def key_values(items: tuple[str, ...], command: str) -> dict[str, str]:
@@ -93,7 +47,7 @@ def metadata_options(func: Any) -> Any:
 
 
 def _list_formats() -> None:
-    rows = describe_formats()
+    rows = format_listing()
     width = max(len(r["name"]) for r in rows)
     for r in rows:
         suffixes = " ".join(r["suffixes"]) or "-"
@@ -160,7 +114,7 @@ def command(
                 f"{src} is a collection of {len(members)} runs: choose the format "
                 "of the outputs with --to NAME (they go into the directory DST)",
             )
-        with bad_input("convert"), transfer_progress(f"convert {src}", quiet) as progress:
+        with bad_input("convert"), progress_bar(f"convert {src}", quiet=quiet) as progress:
             try:
                 for report in convert_collection(
                     src, dst, dst_format=dst_format, progress=progress, **common
@@ -169,7 +123,7 @@ def command(
             except (IsADirectoryError, NotADirectoryError, OSError) as exc:
                 die("convert", f"{exc.filename or src}: {exc.strerror or exc}")
         return
-    with bad_input("convert"), transfer_progress(f"convert {src}", quiet) as progress:
+    with bad_input("convert"), progress_bar(f"convert {src}", quiet=quiet) as progress:
         try:
             report = convert(
                 src, dst, src_format=src_format, dst_format=dst_format, progress=progress,

@@ -8,7 +8,7 @@ from typing import Any
 import click
 
 from massarc.archive import open_runs
-from massarc.archive.describe import run_facts
+from massarc.archive.facts import run_facts
 
 from ._common import bad_input
 

@@ -9,8 +9,8 @@ import click
 
 from massarc.archive.formats.ingest import ingest, open_input
 
-from ._common import bad_input, die
-from .convert import metadata_options, transfer_progress
+from ._common import bad_input, die, progress_bar
+from .convert import metadata_options
 
 __all__ = ["command"]
 
@@ -44,7 +44,7 @@ def command(
     """
     if resume and overwrite:
         die("ingest", "expected --resume or --overwrite; got both")
-    with bad_input("ingest"), transfer_progress(f"ingest -> {dst}", quiet) as progress:
+    with bad_input("ingest"), progress_bar(f"ingest -> {dst}", quiet=quiet) as progress:
         stream, label = open_input(src)
         try:
             report = ingest(

@@ -142,9 +142,7 @@ def command(
     line = shlex.join(["massarc", _NAME, *argv]) if argv is not None else None
     try:
         times = snapshot_times(t_max, snapshots, spacing)  # type: ignore[arg-type]
-        with progress_bar(
-            "sampling", replicas * snapshots, quiet=quiet, unit="snapshots"
-        ) as advance:
+        with progress_bar("sampling", quiet=quiet) as progress:
             simulate(
                 meta,
                 times,
@@ -155,7 +153,7 @@ def command(
                 exact=exact,
                 location=out,
                 overwrite=overwrite,
-                progress=lambda done, _total: advance(done),
+                progress=progress,
                 command=line,
             )
     except MetadataError as exc:  # the sampler's own verdict on the metadata

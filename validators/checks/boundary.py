@@ -30,7 +30,7 @@ import math
 from typing import Any, ClassVar
 
 from massarc.archive.stats.increments import MIN_LENGTH, IncrementStats
-from massarc.schema.format import mass_dimensions
+from massarc.schema.spec import mass_dimensions
 
 from ..boundary_events import EventAudit, audit_events
 from ..boundary_stats import SeamTest, seam_test

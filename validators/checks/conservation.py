@@ -14,7 +14,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from massarc.schema.format import INFLOW, OUTFLOW
+from massarc.schema.spec import INFLOW, OUTFLOW
 
 from ..registry import Check, CheckContext, register_check
 from ..result import CheckResult

@@ -68,7 +68,7 @@ class IntegrityCheck(Check):
             r, s, flat = snap.first_sentinel
             dtype = ctx.run.dtype
             fill_txt = f" {np.iinfo(dtype).max}" if dtype.kind in "ui" else ""
-            site = site_of(tuple(ctx.run.lattice_shape), flat)
+            site = site_of(tuple(ctx.run.sites), flat)
             message = (
                 f"{n_sentinel} values equal the fill value{fill_txt} (never written); first at "
                 f"replica {r}, snapshot {s}, site {site}"

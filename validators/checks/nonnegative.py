@@ -49,7 +49,7 @@ class NonNegativeCheck(Check):
                 "pass", f"every mass is a non-negative integer (dtype {dtype}){note}", values=values
             )
         (r, s, flat), what, _, _ = min(found)
-        site = site_of(tuple(ctx.run.lattice_shape), flat)
+        site = site_of(tuple(ctx.run.sites), flat)
         value = mass_at(ctx.run, r, s, flat)
         shown = f" {value}" if value is not None else ""
         counts = ", ".join(f"{n} {label}" for _, _, label, n in found)

@@ -16,7 +16,7 @@ import numpy as np
 import zarr
 
 from massarc.schema import mass_dimensions
-from massarc.schema.format import MASS, TIME
+from massarc.schema.spec import MASS, TIME
 
 from ..registry import Check, CheckContext, register_check
 from ..result import CheckResult

@@ -7,16 +7,16 @@ is a format change and needs a new format version.
 from __future__ import annotations
 
 __all__ = [
+    "ARCHIVE_MAJOR",
+    "ARCHIVE_MINOR",
+    "ARCHIVE_VERSION",
     "ATTRIBUTE_KEY",
-    "COLLECTION_FORMAT",
+    "COLLECTION_KIND",
     "EVENTS",
-    "FORMAT_MAJOR",
-    "FORMAT_MINOR",
-    "FORMAT_VERSION",
     "INFLOW",
     "MASS",
     "OUTFLOW",
-    "RUN_FORMAT",
+    "RUN_KIND",
     "TIME",
     "mass_dimensions",
     "parse_version",
@@ -25,13 +25,13 @@ __all__ = [
 #: Group attribute under which a run's header (format, version, state, metadata) lives.
 ATTRIBUTE_KEY = "massarc"
 #: ``format`` value of a single run.
-RUN_FORMAT = "massarc-run"
+RUN_KIND = "massarc-run"
 #: ``format`` value of a group that holds several runs (a sweep).
-COLLECTION_FORMAT = "massarc-collection"
+COLLECTION_KIND = "massarc-collection"
 
-FORMAT_MAJOR = 1
-FORMAT_MINOR = 0
-FORMAT_VERSION = f"{FORMAT_MAJOR}.{FORMAT_MINOR}"
+ARCHIVE_MAJOR = 1
+ARCHIVE_MINOR = 0
+ARCHIVE_VERSION = f"{ARCHIVE_MAJOR}.{ARCHIVE_MINOR}"
 
 #: Array names inside a run group.
 MASS = "mass"

@@ -10,14 +10,14 @@ from massarc.schema.models import CMAMModel, CustomModel, ZRPModel
 
 from .reader import Run
 
-__all__ = ["describe_model", "run_facts"]
+__all__ = ["model_line", "run_facts"]
 
 
-def describe_model(model: ZRPModel | CMAMModel | CustomModel) -> str:
+def model_line(model: ZRPModel | CMAMModel | CustomModel) -> str:
     """A one-line description of the declared model.
 
-    >>> describe_model(ZRPModel(family="zrp", b=3.5, drift="asymmetric"))
-    'ZRP, u(k) = 1 + 3.5/k, asymmetric (p_right = 1)'
+    >>> model_line(ZRPModel(family="zrp", b=3.5, drift="asymmetric"))
+    'ZRP, u(k) = 1 + 3.5/k, asymmetric (right_probability = 1)'
     """
     if isinstance(model, ZRPModel):
         if model.b is not None:
@@ -37,7 +37,7 @@ def describe_model(model: ZRPModel | CMAMModel | CustomModel) -> str:
 def _drift(model: ZRPModel | CMAMModel) -> str:
     if model.drift == "symmetric":
         return "symmetric"
-    return f"asymmetric (p_right = {model.p_right:g})"
+    return f"asymmetric (right_probability = {model.right_probability:g})"
 
 
 def run_facts(run: Run) -> dict[str, Any]:
@@ -49,7 +49,7 @@ def run_facts(run: Run) -> dict[str, Any]:
     else:
         lat = meta.lattice
         facts.update(
-            model=describe_model(meta.model),
+            model=model_line(meta.model),
             family=meta.model.family,
             lattice=list(lat.sites),
             boundary=list(lat.boundary),

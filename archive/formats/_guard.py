@@ -11,14 +11,14 @@ import numpy as np
 
 from massarc.schema import RunMeta
 
-from ..blockcheck import first_bad_mass
 from ..errors import DataError
-from .registry import Block
+from ..guards import first_bad_mass
+from .registry import Batch
 
-__all__ = ["BlockChecker"]
+__all__ = ["BatchGuard"]
 
 
-class BlockChecker:
+class BatchGuard:
     """Validate blocks in stream order and normalise their shapes.
 
     Replica 0 builds the reference time axis (``ref``, which a resumed archive seeds with
@@ -50,7 +50,7 @@ class BlockChecker:
 
     # -- helpers --------------------------------------------------------------------------
 
-    def _prefix(self, block: Block, row: int | None) -> str:
+    def _prefix(self, block: Batch, row: int | None) -> str:
         if block.lines is not None and row is not None and row < len(block.lines):
             return f"{self.name}: line {int(block.lines[row])}: "
         return f"{self.name}: "
@@ -62,7 +62,7 @@ class BlockChecker:
 
     # -- the check ------------------------------------------------------------------------
 
-    def check(self, block: Block) -> tuple[np.ndarray, np.ndarray]:
+    def check(self, block: Batch) -> tuple[np.ndarray, np.ndarray]:
         """Return (times, mass) of ``block``, mass shaped ``(n, *lattice)`` (or with a
         leading replica axis for lockstep blocks); raise :class:`DataError` otherwise."""
         lead = 1 if block.replica is not None else 2
@@ -93,7 +93,7 @@ class BlockChecker:
         self.counts[rep0] = start + n
         return times, mass
 
-    def _shape(self, block: Block, lead: int) -> np.ndarray:
+    def _shape(self, block: Batch, lead: int) -> np.ndarray:
         mass = np.asarray(block.mass)
         tail = tuple(mass.shape[lead:])
         if mass.ndim >= lead and tail == self.lattice:
@@ -107,7 +107,7 @@ class BlockChecker:
             f"({self.volume} sites) but the data hold {got} per snapshot"
         )
 
-    def _order(self, block: Block) -> None:
+    def _order(self, block: Batch) -> None:
         r = block.replica
         assert r is not None
         if self.lockstep is not None:
@@ -135,7 +135,7 @@ class BlockChecker:
             )
         self.current = r
 
-    def _times(self, block: Block, t: np.ndarray, rep: int, start: int) -> None:
+    def _times(self, block: Batch, t: np.ndarray, rep: int, start: int) -> None:
         if not len(t):
             return
         bad = ~np.isfinite(t)
@@ -183,7 +183,7 @@ class BlockChecker:
             self._ref.append(new.copy())
             self._ref_len += len(new)
 
-    def _masses(self, block: Block, m: np.ndarray, rep0: int, start: int) -> None:
+    def _masses(self, block: Batch, m: np.ndarray, rep0: int, start: int) -> None:
         """``m`` is ``(replicas, n, *lattice)``."""
         if not m.size:
             return

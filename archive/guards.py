@@ -8,7 +8,7 @@ import numpy as np
 from .errors import DataError
 from .layout import sentinel
 
-__all__ = ["check_masses", "check_times", "first_bad_mass"]
+__all__ = ["check_times", "first_bad_mass", "guard_masses"]
 
 
 def check_times(name: str, t: np.ndarray, first: int, previous: float | None) -> None:
@@ -55,7 +55,7 @@ def first_bad_mass(
     return None
 
 
-def check_masses(
+def guard_masses(
     name: str, m: np.ndarray, first: int, replica0: int, dtype: np.dtype | None
 ) -> None:
     """Masses ``(replica, time, *lattice)``: integers, non-negative, below the sentinel of
