@@ -104,14 +104,14 @@ def baseline_zarr(npy: Path, dst: Path) -> float:
     """zarr-python writing the array as massarc lays it out (codecs, chunks, fill)."""
     import zarr
 
-    from massarc.archive.formats._arrays import BLOCK_BYTES
+    from massarc.archive.formats._arrays import BATCH_BYTES
     from massarc.archive.layout import chunk_snapshots, codecs, sentinel
 
     arr = np.load(npy, mmap_mode="r")
     dt = arr.dtype
     _, n, v = arr.shape
     tc = chunk_snapshots((v,), dt, n)
-    step = tc * max(1, BLOCK_BYTES // (tc * v * dt.itemsize))  # the slab massarc reads
+    step = tc * max(1, BATCH_BYTES // (tc * v * dt.itemsize))  # the slab massarc reads
     shutil.rmtree(dst, ignore_errors=True)
     t0 = time.perf_counter()
     z = zarr.create_array(

@@ -1,13 +1,15 @@
-"""Array-shaped inputs (``.npy``, ``.npz`` members, HDF5 datasets) as snapshot blocks.
+"""Array-shaped inputs (``.npy``, ``.npz`` members, HDF5 datasets, NetCDF variables) as
+snapshot batches.
 
-:func:`array_blocks` reads an N-d array-like (anything sliceable: a memory map, an h5py
+:func:`array_batches` reads an N-d array-like (anything sliceable: a memory map, an h5py
 dataset, a :class:`SequentialArray`) whose axes are named (``replica``, ``time``, ``site``
-or ``y``/``x``) and yields blocks of whole chunks, replica after replica when the replica
-axis comes before time (or is absent), in lockstep otherwise. Memory: one block.
+or ``y``/``x``; see :mod:`._axes`) and yields batches of whole chunks, replica after
+replica when the replica axis comes before time (or is absent), in lockstep otherwise.
+Memory: one batch.
 
 :class:`SequentialArray` wraps a C-ordered array in a forward-only byte stream (a
-compressed zip member) and serves exactly the reads :func:`array_blocks` makes, in storage
-order; any other order is refused with a clear message.
+compressed zip member) and serves exactly the reads :func:`array_batches` makes, in
+storage order; any other order is refused with a clear message.
 """
 
 from __future__ import annotations
@@ -23,14 +25,10 @@ import numpy as np
 from ..errors import DataError
 from .registry import Batch
 
-__all__ = ["BLOCK_BYTES", "SequentialArray", "array_blocks", "lattice_axes"]
+__all__ = ["BATCH_BYTES", "SequentialArray", "array_batches"]
 
-#: Bytes of source data read per block (a whole number of archive chunks when possible).
-BLOCK_BYTES = 64 * 1024 * 1024
-
-
-def lattice_axes(ndim: int) -> tuple[str, ...]:
-    return ("site",) if ndim == 1 else ("y", "x")
+#: Bytes of source data read per batch (a whole number of archive chunks when possible).
+BATCH_BYTES = 64 * 1024 * 1024
 
 
 class SequentialArray:
@@ -94,12 +92,12 @@ def _release(arr: Any) -> None:
 
 
 def _step(chunk: int, per_snapshot: int) -> int:
-    """Snapshots per block: whole chunks of about BLOCK_BYTES, at least one chunk."""
-    chunks = max(1, BLOCK_BYTES // max(1, chunk * per_snapshot))
+    """Snapshots per batch: whole chunks of about BATCH_BYTES, at least one chunk."""
+    chunks = max(1, BATCH_BYTES // max(1, chunk * per_snapshot))
     return chunk * chunks
 
 
-def array_blocks(
+def array_batches(
     arr: Any,
     axes: tuple[str, ...],
     times: np.ndarray,
@@ -107,7 +105,7 @@ def array_blocks(
     *,
     series: Mapping[str, np.ndarray] | None = None,
 ) -> Iterator[Batch]:
-    """Blocks of ``arr`` with named ``axes`` (see the module docstring).
+    """Batches of ``arr`` with named ``axes`` (see the module docstring).
 
     ``series`` maps ``inflow``/``outflow`` to ``(replica, time)`` (or ``(time,)``) arrays.
     """

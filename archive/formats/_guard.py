@@ -1,4 +1,4 @@
-"""Checks of every block a source yields, with messages that name the input.
+"""Checks of every batch a source yields, with messages that name the input.
 
 The archive writer validates too, but it can only name the archive and a snapshot index;
 here the message names the input file and, for text formats, the line:
@@ -19,7 +19,7 @@ __all__ = ["BatchGuard"]
 
 
 class BatchGuard:
-    """Validate blocks in stream order and normalise their shapes.
+    """Validate batches in stream order and normalise their shapes.
 
     Replica 0 builds the reference time axis (``ref``, which a resumed archive seeds with
     its committed times); every other replica must repeat it exactly.
@@ -50,9 +50,9 @@ class BatchGuard:
 
     # -- helpers --------------------------------------------------------------------------
 
-    def _prefix(self, block: Batch, row: int | None) -> str:
-        if block.lines is not None and row is not None and row < len(block.lines):
-            return f"{self.name}: line {int(block.lines[row])}: "
+    def _prefix(self, batch: Batch, row: int | None) -> str:
+        if batch.lines is not None and row is not None and row < len(batch.lines):
+            return f"{self.name}: line {int(batch.lines[row])}: "
         return f"{self.name}: "
 
     def ref(self) -> np.ndarray:
@@ -62,60 +62,60 @@ class BatchGuard:
 
     # -- the check ------------------------------------------------------------------------
 
-    def check(self, block: Batch) -> tuple[np.ndarray, np.ndarray]:
-        """Return (times, mass) of ``block``, mass shaped ``(n, *lattice)`` (or with a
-        leading replica axis for lockstep blocks); raise :class:`DataError` otherwise."""
-        lead = 1 if block.replica is not None else 2
-        mass = self._shape(block, lead)
-        times = np.asarray(block.times, dtype=np.float64).reshape(-1)
+    def check(self, batch: Batch) -> tuple[np.ndarray, np.ndarray]:
+        """Return (times, mass) of ``batch``, mass shaped ``(n, *lattice)`` (or with a
+        leading replica axis for lockstep batches); raise :class:`DataError` otherwise."""
+        lead = 1 if batch.replica is not None else 2
+        mass = self._shape(batch, lead)
+        times = np.asarray(batch.times, dtype=np.float64).reshape(-1)
         n = mass.shape[lead - 1]
         if len(times) != n:
             raise DataError(
                 f"{self.name}: expected one time per snapshot; got {len(times)} times for "
                 f"{n} snapshots"
             )
-        if block.replica is None:
+        if batch.replica is None:
             if self.current is not None:
-                raise DataError(f"{self.name}: expected blocks of one replica at a time")
+                raise DataError(f"{self.name}: expected batches of one replica at a time")
             if self.lockstep is not None and mass.shape[0] != self.lockstep:
                 raise DataError(
-                    f"{self.name}: expected {self.lockstep} replicas in every block; "
+                    f"{self.name}: expected {self.lockstep} replicas in every batch; "
                     f"got {mass.shape[0]}"
                 )
             self.lockstep = mass.shape[0]
             rep0 = 0
         else:
-            self._order(block)
-            rep0 = block.replica
+            self._order(batch)
+            rep0 = batch.replica
         start = self.counts.get(rep0, 0)
-        self._times(block, times, rep0, start)
-        self._masses(block, mass if block.replica is None else mass[None], rep0, start)
+        self._times(batch, times, rep0, start)
+        self._masses(batch, mass if batch.replica is None else mass[None], rep0, start)
         self.counts[rep0] = start + n
         return times, mass
 
-    def _shape(self, block: Batch, lead: int) -> np.ndarray:
-        mass = np.asarray(block.mass)
+    def _shape(self, batch: Batch, lead: int) -> np.ndarray:
+        mass = np.asarray(batch.mass)
         tail = tuple(mass.shape[lead:])
         if mass.ndim >= lead and tail == self.lattice:
             return mass
         if len(self.lattice) == 2 and tail == (self.volume,):
             return mass.reshape(*mass.shape[:lead], *self.lattice)
         got = f"{tail[0]} sites" if len(tail) == 1 else f"shape {list(tail)}"
-        where = self._prefix(block, 0)
+        where = self._prefix(batch, 0)
         raise DataError(
             f"{where}metadata contradicts the data: lattice.sites is {list(self.lattice)} "
             f"({self.volume} sites) but the data hold {got} per snapshot"
         )
 
-    def _order(self, block: Batch) -> None:
-        r = block.replica
+    def _order(self, batch: Batch) -> None:
+        r = batch.replica
         assert r is not None
         if self.lockstep is not None:
-            raise DataError(f"{self.name}: expected lockstep blocks only")
+            raise DataError(f"{self.name}: expected lockstep batches only")
         if self.current is None:
             if r > self.first_replica:
                 raise DataError(
-                    f"{self._prefix(block, 0)}expected replica {self.first_replica} first; "
+                    f"{self._prefix(batch, 0)}expected replica {self.first_replica} first; "
                     f"got replica {r}"
                 )
             self.current = r
@@ -124,25 +124,25 @@ class BatchGuard:
             return
         if r != self.current + 1:
             raise DataError(
-                f"{self._prefix(block, 0)}replicas must come in order 0, 1, 2, ...; got "
+                f"{self._prefix(batch, 0)}replicas must come in order 0, 1, 2, ...; got "
                 f"replica {r} after replica {self.current}"
             )
         done, want = self.counts.get(self.current, 0), self._ref_len
         if done < want:
             raise DataError(
-                f"{self._prefix(block, 0)}replica {self.current} ends after {done} of "
+                f"{self._prefix(batch, 0)}replica {self.current} ends after {done} of "
                 f"{want} snapshots (replica 0 has {want})"
             )
         self.current = r
 
-    def _times(self, block: Batch, t: np.ndarray, rep: int, start: int) -> None:
+    def _times(self, batch: Batch, t: np.ndarray, rep: int, start: int) -> None:
         if not len(t):
             return
         bad = ~np.isfinite(t)
         if bad.any():
             i = int(np.argmax(bad))
             raise DataError(
-                f"{self._prefix(block, i)}replica {rep}, snapshot {start + i}: time "
+                f"{self._prefix(batch, i)}replica {rep}, snapshot {start + i}: time "
                 f"{float(t[i])} is not finite; expected finite times"
             )
         ref = self.ref()
@@ -152,7 +152,7 @@ class BatchGuard:
             diff = want != t[:known]
             if diff.any():
                 i = int(np.argmax(diff))
-                where = f"{self._prefix(block, i)}replica {rep}, snapshot {start + i}"
+                where = f"{self._prefix(batch, i)}replica {rep}, snapshot {start + i}"
                 if start + i < self._archived:
                     raise DataError(
                         f"{where} has time {float(t[i])} in the input but {float(want[i])} in "
@@ -165,7 +165,7 @@ class BatchGuard:
         if known < len(t):
             if (rep != 0 and self.lockstep is None) or not self.growable:
                 raise DataError(
-                    f"{self._prefix(block, known)}replica {rep} has more snapshots than "
+                    f"{self._prefix(batch, known)}replica {rep} has more snapshots than "
                     f"replica 0 ({self._ref_len})"
                 )
             prev = ref[-1] if self._ref_len else None
@@ -176,14 +176,14 @@ class BatchGuard:
                 j = int(np.argmax(steps <= 0))
                 i = known + j + (1 if prev is None else 0)
                 raise DataError(
-                    f"{self._prefix(block, i)}replica {rep}, snapshot {start + i}: time "
+                    f"{self._prefix(batch, i)}replica {rep}, snapshot {start + i}: time "
                     f"{float(seq[j + 1])} is not after the previous {float(seq[j])}; "
                     "expected strictly increasing times"
                 )
             self._ref.append(new.copy())
             self._ref_len += len(new)
 
-    def _masses(self, block: Batch, m: np.ndarray, rep0: int, start: int) -> None:
+    def _masses(self, batch: Batch, m: np.ndarray, rep0: int, start: int) -> None:
         """``m`` is ``(replicas, n, *lattice)``."""
         if not m.size:
             return
@@ -200,7 +200,7 @@ class BatchGuard:
             r, s, *site = (int(x) for x in where)
             site_txt = site[0] if len(site) == 1 else tuple(site)
             raise DataError(
-                f"{self._prefix(block, s)}replica {rep0 + r}, snapshot {start + s}, site "
+                f"{self._prefix(batch, s)}replica {rep0 + r}, snapshot {start + s}, site "
                 f"{site_txt}: mass {m[where].item()} {what}; expected a non-negative integer"
             )
         if start == 0 and self.total is not None:
@@ -209,6 +209,6 @@ class BatchGuard:
             if len(off):
                 r = int(off[0])
                 raise DataError(
-                    f"{self._prefix(block, 0)}metadata contradicts the data: run.total_mass "
+                    f"{self._prefix(batch, 0)}metadata contradicts the data: run.total_mass "
                     f"is {self.total} but replica {rep0 + r}, snapshot 0 holds {int(totals[r])}"
                 )

@@ -34,13 +34,11 @@ from ._scan import DATA, ERR_EMPTY, ERR_LEAD, ERR_LONG, scan_lines
 
 __all__ = [
     "META_PREFIX",
-    "CsvHead",
     "LineParser",
     "LineReader",
     "Rows",
-    "csv_columns",
     "magic_of",
-    "read_csv_head",
+    "meta_line",
     "read_preamble",
 ]
 
@@ -143,13 +141,14 @@ def read_preamble(path: str | os.PathLike[str], name: str) -> dict[str, Any]:
                 continue
             if not text.startswith(b"#"):
                 break
-            meta = _meta_line(text, name, number)
+            meta = meta_line(text, name, number)
             if meta is not None:
                 return meta
     return {}
 
 
-def _meta_line(text: bytes, name: str, line: int) -> dict[str, Any] | None:
+def meta_line(text: bytes, name: str, line: int) -> dict[str, Any] | None:
+    """The metadata of a ``# massarc-meta: {json}`` line (stripped), else None."""
     decoded = text.decode("utf-8", errors="replace")
     if not decoded.startswith(META_PREFIX):
         return None
@@ -230,7 +229,7 @@ class LineParser:
                     f"got {text.decode(errors='replace')!r}"
                 ) from None
             return
-        meta = _meta_line(text, self.name, line)
+        meta = meta_line(text, self.name, line)
         if meta is not None:
             if self.seen_data:
                 raise DataError(
@@ -333,42 +332,3 @@ class LineParser:
             f"{self._where(line)}{what}expected a non-negative integer {self.value_name}"
             f"{too_long}; got {tok!r}"
         )
-
-
-@dataclass(frozen=True)
-class CsvHead:
-    """The top of a CSV file: metadata hints from ``#`` lines, the header's columns and
-    line number, and the byte offset where the rows begin."""
-
-    meta: dict[str, Any]
-    columns: list[str]
-    line: int
-    offset: int
-
-
-def csv_columns(head: bytes) -> list[bytes]:
-    """The stripped fields of the first line of ``head`` that is neither blank nor a
-    ``#`` comment (for sniffing a CSV header)."""
-    for raw in head.split(b"\n"):
-        text = raw.strip()
-        if text and not text.startswith(b"#"):
-            return [c.strip() for c in text.split(b",")]
-    return []
-
-
-def read_csv_head(path: str | os.PathLike[str], name: str) -> CsvHead:
-    """Read the comment lines and the header line of a CSV file."""
-    meta: dict[str, Any] = {}
-    offset = 0
-    with open(path, "rb") as f:
-        for number, raw in enumerate(f, start=1):
-            offset += len(raw)
-            text = raw.strip()
-            if not text:
-                continue
-            if text.startswith(b"#"):
-                meta = _meta_line(text, name, number) or meta
-                continue
-            columns = [c.strip().decode("utf-8", errors="replace") for c in text.split(b",")]
-            return CsvHead(meta, columns, number, offset)
-    raise DataError(f"{name}: expected a header line of column names; found none")

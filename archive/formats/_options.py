@@ -1,4 +1,5 @@
-"""Parsing of ``--option key=value`` strings shared by the formats.
+"""Parsing of ``--option key=value`` strings shared by the formats, and the options of
+writing into a run archive.
 
 Every value arrives as a string; these helpers turn it into what a format needs and
 raise :class:`~massarc.archive.ArchiveError` with "expected X; got Y" otherwise.
@@ -8,29 +9,38 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from pathlib import Path
+from types import MappingProxyType
+from typing import Any
 
 import numpy as np
 
 from ..errors import ArchiveError
 
 __all__ = [
+    "ARCHIVE_WRITE_OPTIONS",
+    "archive_options",
     "as_bool",
     "as_float",
     "as_int",
-    "default_axes",
     "guard_options",
-    "parse_axes",
     "parse_times",
+    "understands",
 ]
 
 _TRUE = {"1", "true", "yes", "on"}
 _FALSE = {"0", "false", "no", "off"}
 
 
+def understands(known: Mapping[str, str], key: str) -> bool:
+    """Whether ``key`` is one of the ``known`` options (``attrs.NAME`` stands for every
+    ``attrs.*`` key)."""
+    return key in known or (key.startswith("attrs.") and "attrs.NAME" in known)
+
+
 def guard_options(options: Mapping[str, str], known: Mapping[str, str], what: str) -> None:
     """Raise for an option ``what`` (e.g. "reading npz") does not understand."""
     for key in options:
-        if key not in known and not (key.startswith("attrs.") and "attrs.NAME" in known):
+        if not understands(known, key):
             names = ", ".join(known) or "none"
             raise ArchiveError(f"unknown option {key!r} for {what}; expected one of: {names}")
 
@@ -105,30 +115,21 @@ def parse_times(value: str, n: int | None, key: str = "times") -> np.ndarray:
     return out
 
 
-def default_axes(ndim: int, lattice_ndim: int) -> tuple[str, ...] | None:
-    """Axis names of a stored mass array: replica and time axes first, lattice last."""
-    lat = ("site",) if lattice_ndim == 1 else ("y", "x")
-    if ndim == lattice_ndim + 1:
-        return ("time", *lat)
-    if ndim == lattice_ndim + 2:
-        return ("replica", "time", *lat)
-    return None
+#: Options of writing into a run archive: ``convert X run.zarr --option max-mass=N``.
+ARCHIVE_WRITE_OPTIONS: Mapping[str, str] = MappingProxyType(
+    {
+        "max-mass": "largest site mass to provide for (chooses the dtype; default: the total)",
+        "clevel": "zstd compression level 1-9 (default 5)",
+    }
+)
 
 
-def parse_axes(value: str, ndim: int, lattice_ndim: int, key: str = "order") -> tuple[str, ...]:
-    """Validate an axis order such as ``time,replica,site``."""
-    axes = tuple(a.strip() for a in str(value).split(",") if a.strip())
-    lat = {"site"} if lattice_ndim == 1 else {"y", "x"}
-    allowed = {"replica", "time"} | lat
-    want = ",".join(default_axes(ndim, lattice_ndim) or ("replica", "time", *sorted(lat)))
-    if (
-        len(axes) != ndim
-        or len(set(axes)) != ndim
-        or not set(axes) <= allowed
-        or "time" not in axes
-        or not lat <= set(axes)
-    ):
-        raise ArchiveError(
-            f"option {key}: expected {ndim} distinct axis names such as {want}; got {value!r}"
-        )
-    return axes
+def archive_options(options: Mapping[str, str]) -> dict[str, Any]:
+    """``max-mass`` and ``clevel`` as keyword arguments of :func:`.stream.write_source`."""
+    out: dict[str, Any] = {}
+    if "max-mass" in options:
+        out["max_mass"] = as_int(options["max-mass"], "max-mass", minimum=0)
+    if "clevel" in options:
+        level = as_int(options["clevel"], "clevel", minimum=1)
+        out["clevel"] = min(level, 9)
+    return out

@@ -56,8 +56,8 @@ def convert_collection(
     members = collection_members(src)
     if members is None:
         raise ArchiveError(f"{os.fspath(src)}: not a collection of runs on a local disk")
-    fmt = get_format(dst_format)
-    suffix = fmt.suffixes[0] if fmt.suffixes else f".{fmt.name}"
+    out_format = get_format(dst_format)
+    suffix = out_format.suffixes[0] if out_format.suffixes else f".{out_format.name}"
     out = Path(dst)
     if out.exists() and not out.is_dir():
         raise ArchiveError(f"{out}: expected a directory for the runs of a collection")
@@ -66,4 +66,4 @@ def convert_collection(
     if len(set(names.values())) != len(names):
         raise ArchiveError(f"{os.fspath(src)}: two runs would get the same output name")
     for member, name in names.items():
-        yield convert(member, out / name, dst_format=fmt.name, overwrite=overwrite, **kwargs)
+        yield convert(member, out / name, dst_format=out_format.name, overwrite=overwrite, **kwargs)

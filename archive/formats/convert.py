@@ -16,14 +16,15 @@ import secrets
 import shutil
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 
 from ..errors import ArchiveError
 from ..reader import open_run
 from ..store import local_path
+from ._options import archive_options, understands
 from .registry import Format, Progress, detect_format, get_format
 from .stream import resolve_metadata, write_source
-from .zarr_run import archive_options
 
 __all__ = ["ConvertReport", "convert", "split_options"]
 
@@ -36,14 +37,10 @@ class ConvertReport:
     destination: str
     source_format: str
     destination_format: str
-    replicas: int
-    snapshots: int
+    n_replicas: int
+    n_snapshots: int
     sites: tuple[int, ...]
     notes: list[str] = field(default_factory=list)
-
-
-def _fits(key: str, known: Mapping[str, str]) -> bool:
-    return key in known or (key.startswith("attrs.") and "attrs.NAME" in known)
 
 
 def split_options(
@@ -51,23 +48,24 @@ def split_options(
 ) -> tuple[dict[str, str], dict[str, str]]:
     """Route each ``--option``: ``from.KEY``/``to.KEY`` explicitly, else to the side that
     knows the key (the reader first)."""
-    ropts, wopts = {}, {}
+    read_options: dict[str, str] = {}
+    write_options: dict[str, str] = {}
     for key, value in options.items():
         if key.startswith("from."):
-            ropts[key[5:]] = value
+            read_options[key[5:]] = value
         elif key.startswith("to."):
-            wopts[key[3:]] = value
-        elif _fits(key, reader.read_options):
-            ropts[key] = value
-        elif _fits(key, writer.write_options):
-            wopts[key] = value
+            write_options[key[3:]] = value
+        elif understands(reader.read_options, key):
+            read_options[key] = value
+        elif understands(writer.write_options, key):
+            write_options[key] = value
         else:
             known = sorted({*reader.read_options, *writer.write_options})
             raise ArchiveError(
                 f"unknown option {key!r} for reading {reader.name} or writing {writer.name}; "
                 f"expected one of: {', '.join(known) or 'none'}"
             )
-    return ropts, wopts
+    return read_options, write_options
 
 
 def _remove(path: Path) -> None:
@@ -112,18 +110,26 @@ def convert(
         raise ArchiveError(f"format {reader.name} cannot be read")
     if not writer.writable:
         raise ArchiveError(f"format {writer.name} cannot be written; it is read-only")
-    ropts, wopts = split_options(options or {}, reader, writer)
+    read_options, write_options = split_options(options or {}, reader, writer)
     dst_text = os.fspath(dst)
     dst_path = local_path(dst_text)
     src_path = local_path(os.fspath(src))
     if dst_path is not None and src_path is not None and dst_path.resolve() == src_path.resolve():
         raise ArchiveError(f"{dst_text}: expected a destination other than the source")
+    into_archive = partial(
+        _to_archive,
+        reader,
+        src,
+        shown=dst_text,
+        meta=meta,
+        overrides=overrides,
+        read_options=read_options,
+        progress=progress,
+    )
     if dst_path is None:
         if writer.name != "zarr":
             raise ArchiveError(f"{dst_text}: expected a local path for format {writer.name}")
-        return _to_archive(
-            reader, src, dst_text, dst_text, meta, overrides, ropts, wopts, overwrite, progress
-        )
+        return into_archive(dst_text, write_options=write_options, overwrite=overwrite)
     if (dst_path.exists() or dst_path.is_symlink()) and not overwrite:
         raise ArchiveError(f"{dst_text}: already exists (pass --overwrite to replace it)")
     token = secrets.token_hex(4)
@@ -131,18 +137,14 @@ def convert(
     staging = dst_path.with_name(f"{dst_path.name}.partial-{token}.zarr")
     try:
         if writer.name == "zarr":
-            report = _to_archive(
-                reader, src, tmp, dst_text, meta, overrides, ropts, wopts, False, progress
-            )
+            report = into_archive(tmp, write_options=write_options, overwrite=False)
         else:
-            if reader.name == "zarr" and meta is None and not overrides and not ropts:
+            if reader.name == "zarr" and meta is None and not overrides and not read_options:
                 run = open_run(src)
             else:
-                _to_archive(
-                    reader, src, staging, dst_text, meta, overrides, ropts, {}, False, progress
-                )
+                into_archive(staging, write_options={}, overwrite=False)
                 run = open_run(staging)
-            notes = writer.write(run, tmp, progress=progress, **wopts)
+            notes = writer.write(run, tmp, progress=progress, **write_options)
             report = ConvertReport(
                 os.fspath(src),
                 dst_text,
@@ -166,34 +168,35 @@ def _to_archive(
     reader: Format,
     src: str | os.PathLike[str],
     location: str | Path,
+    *,
     shown: str,
     meta: str | os.PathLike[str] | None,
     overrides: list[str],
-    ropts: dict[str, str],
-    wopts: dict[str, str],
+    read_options: dict[str, str],
+    write_options: dict[str, str],
     overwrite: bool,
     progress: Progress | None,
 ) -> ConvertReport:
     path = local_path(os.fspath(src))
-    with reader.read(path if path is not None else Path(os.fspath(src)), **ropts) as source:
+    with reader.read(path if path is not None else Path(os.fspath(src)), **read_options) as source:
         run_meta = resolve_metadata(source.hints(), meta, overrides, source.name, source.mapped())
-        w = write_source(
+        written = write_source(
             source,
             location,
             run_meta,
             overwrite=overwrite,
             name=shown,
             progress=progress,
-            **archive_options(wopts),
+            **archive_options(write_options),
         )
-        st = w.state
+        state = written.state
         return ConvertReport(
             os.fspath(src),
             shown,
             reader.name,
             "zarr",
-            st.replicas,
-            st.snapshots,
+            state.replicas,
+            state.snapshots,
             tuple(run_meta.lattice.sites),
             list(source.notes),
         )

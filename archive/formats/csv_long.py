@@ -30,11 +30,11 @@ from massarc.schema import RunMeta
 
 from ..errors import DataError
 from ..reader import Run
-from ._lines import LineParser, LineReader, Rows, csv_columns, read_csv_head
+from ._csv import CsvSource, csv_columns, guard_replica_index, guard_row_width, replica_runs
+from ._export import export_lines, meta_comment
+from ._lines import Rows
 from ._options import guard_options
-from .csv_wide import replica_runs
 from .registry import Batch, Events, Format, Progress, Source, register_format
-from .text import export_lines, meta_comment
 
 __all__ = ["CsvLongFormat"]
 
@@ -43,8 +43,8 @@ _CELLS = 1 << 22
 
 
 @dataclass
-class _Open:
-    """The snapshot whose rows may continue in the next batch."""
+class _OpenSnapshot:
+    """The snapshot whose rows may continue in the next batch of lines."""
 
     replica: int
     time: float
@@ -73,48 +73,27 @@ def _layout(columns: list[str], name: str, line: int) -> tuple[int, int]:
     )
 
 
-class CsvLongSource(Source):
-    unit = "bytes"
-
+class CsvLongSource(CsvSource):
     def __init__(self, path: Path) -> None:
-        self.path = path
-        self.name = str(path)
-        self.head = read_csv_head(path, self.name)
-        self.lead, self.nsite = _layout(self.head.columns, self.name, self.head.line)
-        self.total = path.stat().st_size
+        super().__init__(path)
+        self.lead, self.site_columns = _layout(self.head.columns, self.name, self.head.line)
 
-    def hints(self) -> dict[str, Any]:
-        return self.head.meta
-
-    def _sites(self, rows: Rows, lattice: tuple[int, ...], reps: np.ndarray) -> np.ndarray:
-        ints = self.nsite + 1
-        bad = np.flatnonzero(rows.counts != ints)
-        if len(bad):
-            i = int(bad[0])
-            raise DataError(
-                f"{self.name}: line {int(rows.lines[i])}: expected "
-                f"{self.lead + ints} fields (as in the header); got "
-                f"{self.lead + int(rows.counts[i])} (a ragged or truncated row)"
-            )
+    def _site_mass(self, rows: Rows, lattice: tuple[int, ...], reps: np.ndarray) -> np.ndarray:
+        ints = self.site_columns + 1
+        guard_row_width(rows, self.lead, ints, self.name)
         vals = rows.values.reshape(len(rows.counts), ints)
-        badrep = (reps != np.floor(reps)) | (reps < 0) | ~np.isfinite(reps)
-        if badrep.any():
-            i = int(np.argmax(badrep))
-            raise DataError(
-                f"{self.name}: line {int(rows.lines[i])}: expected a replica index "
-                f">= 0; got {float(reps[i])!r}"
-            )
-        if self.nsite != len(lattice):
+        guard_replica_index(reps, rows.lines, self.name)
+        if self.site_columns != len(lattice):
             raise DataError(
                 f"{self.name}: line {self.head.line}: metadata contradicts the data: "
                 f"lattice.sites is {list(lattice)} but the header has "
-                f"{self.nsite} site column(s)"
+                f"{self.site_columns} site column(s)"
             )
-        coords = vals[:, : self.nsite]
+        coords = vals[:, : self.site_columns]
         out = (coords < 0) | (coords >= np.asarray(lattice))
         if out.any():
             i, k = (int(x) for x in np.argwhere(out)[0])
-            axis = "site" if self.nsite == 1 else ("y", "x")[k]
+            axis = "site" if self.site_columns == 1 else ("y", "x")[k]
             raise DataError(
                 f"{self.name}: line {int(rows.lines[i])}: {axis} {int(coords[i, k])} "
                 f"is outside the lattice {list(lattice)}"
@@ -127,35 +106,30 @@ class CsvLongSource(Source):
                 f"time {float(rows.lead[i, self.lead - 1])!r}: mass {int(mass[i])} is "
                 "negative; expected a non-negative integer"
             )
-        flat = coords[:, 0] if self.nsite == 1 else coords[:, 0] * lattice[1] + coords[:, 1]
+        flat = coords[:, 0] if self.site_columns == 1 else coords[:, 0] * lattice[1] + coords[:, 1]
         return np.stack([flat, mass], axis=1)
 
     def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
         lattice = tuple(meta.lattice.sites)
-        names = ("replica", "time") if self.lead == 2 else ("time",)
-        parser = LineParser(
-            self.name, "", lead=self.lead, comma=True, lead_names=names, replicas=False
-        )
         state: dict[str, int] = {}
-        carry: _Open | None = None
-        with open(self.path, "rb") as f:
-            f.seek(self.head.offset)
-            reader = LineReader(f, self.name)
-            reader.line = self.head.line + 1
-            for buf, first, _ in reader:
-                for rows in parser.parse(buf, first):
-                    reps = rows.lead[:, 0] if self.lead == 2 else np.zeros(len(rows.counts))
-                    sm = self._sites(rows, lattice, reps)
-                    carry, done = self._group(rows, reps, sm, carry, meta.lattice.volume)
-                    for snap in done:
-                        yield from self._emit(snap, state, reader.bytes_done)
+        carry: _OpenSnapshot | None = None
+        for rows, reps in self.rows():
+            site_mass = self._site_mass(rows, lattice, reps)
+            carry, finished = self._group(rows, reps, site_mass, carry, meta.lattice.volume)
+            for snap in finished:
+                yield from self._emit(snap, state, self.bytes_done)
         if carry is not None:
             last = ([carry.replica], [carry.time], [carry.line], carry.dense[None])
-            yield from self._emit(last, state, reader.bytes_done)
+            yield from self._emit(last, state, self.bytes_done)
 
     def _group(
-        self, rows: Rows, reps: np.ndarray, sm: np.ndarray, carry: _Open | None, volume: int
-    ) -> tuple[_Open | None, list[Any]]:
+        self,
+        rows: Rows,
+        reps: np.ndarray,
+        site_mass: np.ndarray,
+        carry: _OpenSnapshot | None,
+        volume: int,
+    ) -> tuple[_OpenSnapshot | None, list[Any]]:
         t = rows.lead[:, self.lead - 1]
         prev_r = np.concatenate([[carry.replica if carry else np.nan], reps[:-1]])
         prev_t = np.concatenate([[carry.time if carry else np.nan], t[:-1]])
@@ -174,22 +148,22 @@ class CsvLongSource(Source):
         g_time = ([carry.time] if carry else []) + t[starts].tolist()
         g_line = ([carry.line] if carry else []) + rows.lines[starts].tolist()
         n_groups = len(g_rep)
-        key = ids * volume + sm[:, 0]
+        key = ids * volume + site_mass[:, 0]
         order = np.argsort(key, kind="stable")
         dup = key[order][1:] == key[order][:-1]
         if carry is not None:
             first = ids == 0
-            dup_carry = first & carry.seen[np.where(first, sm[:, 0], 0)]
+            dup_carry = first & carry.seen[np.where(first, site_mass[:, 0], 0)]
         else:
             dup_carry = np.zeros(len(ids), bool)
         if dup.any() or dup_carry.any():
             cands = list(order[1:][dup]) + list(np.flatnonzero(dup_carry))
             i = int(min(cands, key=lambda j: rows.lines[j]))
             raise DataError(
-                f"{self.name}: line {int(rows.lines[i])}: site {int(sm[i, 0])} "
+                f"{self.name}: line {int(rows.lines[i])}: site {int(site_mass[i, 0])} "
                 "appears twice in one snapshot (rows grouped by (replica, time))"
             )
-        done = []
+        finished = []
         step = max(1, _CELLS // max(volume, 1))
         for a in range(0, n_groups, step):
             b = min(a + step, n_groups)
@@ -197,16 +171,18 @@ class CsvLongSource(Source):
             if carry is not None and a == 0:
                 dense[0] = carry.dense
             sel = (ids >= a) & (ids < b)
-            np.add.at(dense, (ids[sel] - a, sm[sel, 0]), sm[sel, 1])
-            done.append((g_rep[a:b], g_time[a:b], g_line[a:b], dense))
-        last_rep, last_t, last_line, last_dense = done[-1]
+            np.add.at(dense, (ids[sel] - a, site_mass[sel, 0]), site_mass[sel, 1])
+            finished.append((g_rep[a:b], g_time[a:b], g_line[a:b], dense))
+        last_rep, last_t, last_line, last_dense = finished[-1]
         seen = np.zeros(volume, bool)
-        seen[sm[ids == n_groups - 1, 0]] = True
+        seen[site_mass[ids == n_groups - 1, 0]] = True
         if carry is not None and n_groups == 1:
             seen |= carry.seen
-        new_carry = _Open(last_rep[-1], last_t[-1], last_line[-1], last_dense[-1].copy(), seen)
-        done[-1] = (last_rep[:-1], last_t[:-1], last_line[:-1], last_dense[:-1])
-        return new_carry, done
+        new_carry = _OpenSnapshot(
+            last_rep[-1], last_t[-1], last_line[-1], last_dense[-1].copy(), seen
+        )
+        finished[-1] = (last_rep[:-1], last_t[:-1], last_line[:-1], last_dense[:-1])
+        return new_carry, finished
 
     def _emit(self, snap: Any, state: dict[str, int], done: int) -> Iterator[Batch]:
         g_rep, g_time, g_line, dense = snap
@@ -217,7 +193,7 @@ class CsvLongSource(Source):
             yield Batch(np.asarray(g_time[a:b]), dense[a:b], replica=r, lines=lines[a:b], done=done)
 
 
-def _rows(lattice: tuple[int, ...], replica: int, times: np.ndarray, mass: np.ndarray) -> str:
+def _row_lines(lattice: tuple[int, ...], replica: int, times: np.ndarray, mass: np.ndarray) -> str:
     """Rows ``replica,time,site,mass`` of the occupied sites (site 0 of an empty snapshot)."""
     flat = mass.reshape(len(mass), -1)
     out = []
@@ -259,7 +235,7 @@ class CsvLongFormat(Format):
             run,
             path,
             meta_comment(run) + header,
-            partial(_rows, lattice),
+            partial(_row_lines, lattice),
             progress,
             replica_lines=False,
         )

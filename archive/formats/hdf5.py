@@ -16,65 +16,23 @@ attribute ``massarc_metadata`` holds the metadata as JSON.
 
 from __future__ import annotations
 
-import json
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any, ClassVar
 
-import numpy as np
-
-from massarc.schema import MetadataError, RunMeta, apply_overrides
+from massarc.schema import RunMeta
 from massarc.schema.spec import INFLOW, OUTFLOW
 
 from ..errors import DataError
 from ..reader import Run
-from ._arrays import array_blocks
-from ._options import guard_options, parse_axes
-from .npy import axes_for, times_for
+from ._arrays import array_batches
+from ._axes import axes_for, lattice_axes, parse_axes, times_for
+from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
+from ._options import guard_options
+from ._signatures import HDF5_MAGIC
 from .registry import Batch, Events, Format, Progress, Source, register_format
-from .zarr_run import meta_dict
 
-__all__ = ["HDF5Format", "attr_value", "mapped_attrs"]
-
-HDF5_MAGIC = b"\x89HDF\r\n\x1a\n"
-META_ATTR = "massarc_metadata"
-
-
-def attr_value(value: Any) -> Any:
-    """An HDF5/NetCDF attribute as a plain JSON-able value."""
-    if isinstance(value, bytes):
-        return value.decode("utf-8", errors="replace")
-    if isinstance(value, np.ndarray):
-        return [attr_value(v) for v in value.tolist()] if value.ndim else attr_value(value.item())
-    if isinstance(value, np.generic):
-        return value.item()
-    return value
-
-
-def mapped_attrs(options: dict[str, str], lookup: Any, where: str) -> dict[str, Any]:
-    """Metadata from ``attrs.NAME=key.path`` options; ``lookup(NAME)`` returns the value or
-    raises KeyError."""
-    data: dict[str, Any] = {}
-    for key, path in options.items():
-        if not key.startswith("attrs."):
-            continue
-        attr = key[len("attrs.") :]
-        try:
-            value = attr_value(lookup(attr))
-        except KeyError:
-            raise DataError(f"{where}: no attribute {attr!r} (option {key}={path})") from None
-        data = apply_overrides(data, [f"{path}={json.dumps(value)}"])
-    return data
-
-
-def json_attr(raw: Any, where: str) -> dict[str, Any]:
-    try:
-        data = json.loads(attr_value(raw))
-    except (TypeError, ValueError) as exc:
-        raise MetadataError([f"expected JSON metadata; got invalid JSON ({exc})"], where) from None
-    if not isinstance(data, dict):
-        raise MetadataError(["expected a JSON object"], where)
-    return data
+__all__ = ["HDF5Format"]
 
 
 class HDF5Source(Source):
@@ -124,7 +82,7 @@ class HDF5Source(Source):
         data: dict[str, Any] = {}
         for node in (self.file, self.mass):
             if key in node.attrs:
-                data = json_attr(node.attrs[key], f"{self.name}: attribute {key}")
+                data = metadata_from_json(node.attrs[key], f"{self.name}: attribute {key}")
         return data
 
     def mapped(self) -> dict[str, Any]:
@@ -139,7 +97,7 @@ class HDF5Source(Source):
                 pass
         return axes_for(self.mass.shape, meta, self.options.get("order"), self.label)
 
-    def time_length(self, meta: RunMeta) -> int | None:
+    def n_snapshots_for(self, meta: RunMeta) -> int | None:
         return int(self.mass.shape[self._axes(meta).index("time")])
 
     def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
@@ -154,7 +112,7 @@ class HDF5Source(Source):
         parent = self.mass.parent
         series = {k: parent[k][()] for k in (INFLOW, OUTFLOW) if k in parent}
         try:
-            yield from array_blocks(self.mass, axes, times, chunk, series=series)
+            yield from array_batches(self.mass, axes, times, chunk, series=series)
         except OSError as exc:
             raise DataError(f"{self.label}: cannot read ({exc})") from None
 
@@ -196,7 +154,7 @@ class HDF5Format(Format):
             raise DataError(f"option compression: expected gzip, lzf or none; got {comp!r}")
         lattice = run.sites
         chunks = (1, max(1, min(run.chunk_snapshots, run.n_snapshots)), *lattice)
-        names = ("replica", "time", *(("site",) if len(lattice) == 1 else ("y", "x")))
+        names = ("replica", "time", *lattice_axes(len(lattice)))
         total, done = run.n_replicas * run.n_snapshots, 0
         with h5py.File(path, "w") as f:
             ds = f.create_dataset(
@@ -214,10 +172,10 @@ class HDF5Format(Format):
                 if val is not None:
                     f.create_dataset(key, data=val)
             if run.meta is not None:
-                f.attrs[META_ATTR] = json.dumps(meta_dict(run.meta))
-            for block in run.chunks():
-                ds[block.replica, block.start : block.stop] = block.mass
-                done += block.stop - block.start
+                f.attrs[META_ATTR] = meta_json(run.meta)
+            for chunk in run.chunks():
+                ds[chunk.replica, chunk.start : chunk.stop] = chunk.mass
+                done += chunk.stop - chunk.start
                 if progress is not None:
                     progress(done, total, "snapshots")
         return []

@@ -1,11 +1,11 @@
 """Live ingestion: archive a run while a simulator prints it (``./sim | massarc ingest -``).
 
-The input is the text format of :mod:`.text`. Snapshots are appended as they arrive and
-committed whenever the input has no further complete line immediately available (and at
-least every ``commit_seconds``, at every replica boundary and at the end), so after a kill
-of either side nothing before the last complete snapshot that reached massarc is lost. A
-line without its newline at the end of the input (a producer killed mid-line) is never
-archived.
+The input is the plain-text layout of the ``text`` format (:mod:`._text_rows`).
+Snapshots are appended as they arrive and committed whenever the input has no further
+complete line immediately available (and at least every ``commit_seconds``, at every
+replica boundary and at the end), so after a kill of either side nothing before the last
+complete snapshot that reached massarc is lost. A line without its newline at the end of
+the input (a producer killed mid-line) is never archived.
 
 ``resume=True`` reopens the archive after a crash and skips every input snapshot it
 already holds, matched by replica index and time: feeding the whole stream again neither
@@ -30,10 +30,10 @@ from ..errors import ArchiveError, DataError
 from ..store import local_path
 from ..writer import RunWriter, create_run, resume_run
 from ._lines import LineParser, LineReader
+from ._metadata import meta_dict
+from ._text_rows import TEXT_MAGIC, rows_to_batch
 from .registry import Progress
 from .stream import BatchFeeder, archive_dtype, merge_dicts, resolve_metadata
-from .text import MAGIC, rows_to_block
-from .zarr_run import meta_dict
 
 __all__ = ["IngestReport", "ingest"]
 
@@ -46,12 +46,12 @@ class IngestReport:
     destination: str
     appended: int
     skipped: int
-    replicas: int
-    snapshots: int
+    n_replicas: int
+    n_snapshots: int
     complete: bool
 
 
-def _check_resume_meta(
+def _guard_resume_meta(
     writer: RunWriter, meta: str | os.PathLike[str] | None, overrides: list[str]
 ) -> None:
     """``--meta``/``--set`` given again on resume must agree with the archive's physics."""
@@ -91,17 +91,17 @@ def ingest(
     stream: BinaryIO | int = open(src, "rb", buffering=0) if own else src  # noqa: SIM115
     label = name or (os.fspath(src) if own else "<stdin>")  # type: ignore[arg-type]
     writer: RunWriter | None = None
-    pump: BatchFeeder | None = None
+    feeder: BatchFeeder | None = None
     try:
         path = local_path(dst_text)
         if resume and path is not None and not (path / "zarr.json").exists():
             resume = False  # killed before the archive began: start it (same command again)
         if resume:
-            # strict=False: the BatchFeeder's BatchGuard checks every block (file and line)
+            # strict=False: the BatchFeeder's BatchGuard checks every batch (file and line)
             writer = resume_run(dst, commit_seconds=commit_seconds, strict=False)
-            _check_resume_meta(writer, meta, overrides)
+            _guard_resume_meta(writer, meta, overrides)
             writer.name = dst_text
-            pump = BatchFeeder(
+            feeder = BatchFeeder(
                 writer,
                 label,
                 writer.chunk_snapshots or 1,
@@ -115,62 +115,67 @@ def ingest(
                     f"{dst_text}: already exists (pass --resume to continue it, or --overwrite)"
                 )
         reader = LineReader(stream, label, live=True)
-        parser = LineParser(label, MAGIC)
+        parser = LineParser(label, TEXT_MAGIC)
         width: dict[str, int] = {}
         last_replica: int | None = None
         try:
             for buf, first, idle in reader:
                 for rows in parser.parse(buf, first):
-                    if pump is None:
+                    if feeder is None:
                         run_meta = resolve_metadata(parser.meta or {}, meta, overrides, label)
-                        block = rows_to_block(rows, run_meta, label, state=width)
-                        dtype = archive_dtype(run_meta, None, None, block)
+                        first_batch = rows_to_batch(rows, run_meta, label, state=width)
+                        dtype = archive_dtype(run_meta, None, None, first_batch)
                         writer = create_run(
                             dst,
                             run_meta,
                             overwrite=overwrite,
                             dtype=dtype,
                             commit_seconds=commit_seconds,
-                            strict=False,  # the BatchFeeder's BatchGuard checks every block
+                            strict=False,  # the BatchFeeder's BatchGuard checks every batch
                         )
                         writer.name = dst_text
                         chunk = writer.chunk_snapshots or 1
-                        pump = BatchFeeder(writer, label, chunk, progress=progress, unit="bytes")
+                        feeder = BatchFeeder(writer, label, chunk, progress=progress, unit="bytes")
                     assert writer is not None
-                    block = rows_to_block(rows, writer.meta, label, reader.bytes_done, state=width)
+                    batch = rows_to_batch(rows, writer.meta, label, reader.bytes_done, state=width)
                     if last_replica is not None and rows.replica != last_replica:
-                        pump.commit()
+                        feeder.commit()
                     last_replica = rows.replica
-                    pump.feed(block)
-                if idle and pump is not None:
-                    pump.commit()
+                    feeder.feed(batch)
+                if idle and feeder is not None:
+                    feeder.commit()
         except BaseException:
-            if pump is not None:
+            if feeder is not None:
                 # keep every valid snapshot read before the fault (which may itself be in
                 # what is pending)
                 with contextlib.suppress(Exception):
-                    pump.commit()
+                    feeder.commit()
             raise
-        if pump is None or writer is None:
+        if feeder is None or writer is None:
             raise DataError(f"{label}: expected at least one snapshot; found none")
-        pump.finish(whole=False)
-        st = writer.state
+        feeder.finish(whole=False)
+        state = writer.state
         if reader.partial:
             raise DataError(
                 f"{label}: line {reader.line}: the input ended inside this line (no newline); "
                 f"it was not archived and {dst_text} stays incomplete (continue it with "
                 "massarc ingest --resume)"
             )
-        if st.open_replica:
+        if state.open_replica:
             raise DataError(
-                f"{dst_text}: replica {st.replicas} has {st.open_replica} of {st.snapshots} "
-                "snapshots; the archive stays incomplete (feed the rest with massarc ingest "
-                "--resume)"
+                f"{dst_text}: replica {state.replicas} has {state.open_replica} of "
+                f"{state.snapshots} snapshots; the archive stays incomplete (feed the rest "
+                "with massarc ingest --resume)"
             )
         writer.close()
-        st = writer.state
+        state = writer.state
         return IngestReport(
-            dst_text, pump.appended, pump.skipped, st.replicas, st.snapshots, st.complete
+            dst_text,
+            feeder.appended,
+            feeder.skipped,
+            state.replicas,
+            state.snapshots,
+            state.complete,
         )
     finally:
         if own:

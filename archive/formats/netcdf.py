@@ -11,12 +11,11 @@ variable with a time dimension) whose dimensions are a time dimension (``time``,
 ``--option time-dim=``), an optional replica dimension (``replica``, or
 ``--option replica-dim=``) and one or two lattice dimensions, in any order. Times come
 from the time coordinate. Metadata: ``massarc_metadata`` and ``--option attrs.NAME=key``
-(variable attributes, then global ones). Slices are read lazily, one block at a time.
+(variable attributes, then global ones). Slices are read lazily, one batch at a time.
 """
 
 from __future__ import annotations
 
-import json
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any, ClassVar
@@ -28,19 +27,17 @@ from massarc.schema.spec import INFLOW, OUTFLOW
 
 from ..errors import DataError
 from ..reader import Run
-from ._arrays import array_blocks, lattice_axes
+from ._arrays import array_batches
+from ._axes import lattice_axes, times_for
+from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
 from ._options import guard_options
-from .hdf5 import HDF5_MAGIC, META_ATTR, json_attr, mapped_attrs
-from .npy import times_for
+from ._signatures import HDF5_MAGIC, NETCDF_CLASSIC_MAGIC
 from .registry import Batch, Events, Format, Progress, Source, register_format
-from .zarr_run import meta_dict
 
 __all__ = ["NetCDFFormat"]
 
-_CLASSIC = (b"CDF\x01", b"CDF\x02", b"CDF\x05")
 
-
-class _Lazy:
+class _LazyVariable:
     """Positional slicing of an xarray variable, loading only the slice."""
 
     def __init__(self, var: Any) -> None:
@@ -120,7 +117,7 @@ class NetCDFSource(Source):
         data: dict[str, Any] = {}
         for attrs in (self.ds.attrs, self.var.attrs):
             if META_ATTR in attrs:
-                data = json_attr(attrs[META_ATTR], f"{self.name}: attribute {META_ATTR}")
+                data = metadata_from_json(attrs[META_ATTR], f"{self.name}: attribute {META_ATTR}")
         return data
 
     def mapped(self) -> dict[str, Any]:
@@ -132,7 +129,7 @@ class NetCDFSource(Source):
 
         return mapped_attrs(self.options, lookup, self.label)
 
-    def time_length(self, meta: RunMeta) -> int | None:
+    def n_snapshots_for(self, meta: RunMeta) -> int | None:
         return int(self.ds.sizes[self.time_dim])
 
     def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
@@ -155,7 +152,7 @@ class NetCDFSource(Source):
                     .values
                 )
         try:
-            yield from array_blocks(_Lazy(self.var), axes, times, chunk, series=series)
+            yield from array_batches(_LazyVariable(self.var), axes, times, chunk, series=series)
         except (OSError, RuntimeError) as exc:
             raise DataError(f"{self.label}: cannot read ({exc})") from None
 
@@ -181,7 +178,7 @@ class NetCDFFormat(Format):
     sniff_priority = 1
 
     def sniff(self, head: bytes, path: Path) -> bool:
-        if head.startswith(_CLASSIC):
+        if head.startswith(NETCDF_CLASSIC_MAGIC):
             return True
         if not head.startswith(HDF5_MAGIC):
             return False
@@ -221,7 +218,7 @@ class NetCDFFormat(Format):
             "time": ("time", run.times, {"units": units}),
             "replica": ("replica", np.arange(run.n_replicas, dtype=np.int32)),
         }
-        attrs = {META_ATTR: json.dumps(meta_dict(run.meta))} if run.meta is not None else {}
+        attrs = {META_ATTR: meta_json(run.meta)} if run.meta is not None else {}
         ds = xr.Dataset(data, coords=coords, attrs=attrs)
         enc: dict[str, Any] = {"chunksizes": chunks}
         if comp == "gzip":

@@ -9,13 +9,12 @@ mass=NAME``, ``--option time=NAME``.
 Streaming: a member stored uncompressed (``np.savez``, and massarc's default) is
 memory-mapped in place; a compressed one (``np.savez_compressed``) is decompressed forward,
 its header read with :func:`numpy.lib.format.read_magic` / ``read_array_header_*`` from
-the member stream, so it must keep the lattice axes last. Writing streams every member
-the same way, block by block.
+the member stream, so it must keep the lattice axes last. Writing streams the mass
+member chunk by chunk.
 """
 
 from __future__ import annotations
 
-import json
 import struct
 import zipfile
 from collections.abc import Iterator
@@ -24,16 +23,18 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from massarc.schema import MetadataError, RunMeta
+from massarc.schema import RunMeta
 from massarc.schema.spec import INFLOW, OUTFLOW
 
 from ..errors import DataError
 from ..reader import Run
-from ._arrays import SequentialArray, array_blocks
+from ._arrays import SequentialArray, array_batches
+from ._axes import axes_for, times_for
+from ._metadata import meta_json, metadata_from_json
+from ._npy_stream import read_npy_header, write_npy_stream
 from ._options import as_bool, guard_options
-from .npy import axes_for, read_npy_header, times_for, write_npy_stream
+from ._signatures import ZIP_MAGIC
 from .registry import Batch, Events, Format, Progress, Source, register_format
-from .zarr_run import meta_dict
 
 __all__ = ["NpzFormat"]
 
@@ -78,18 +79,9 @@ class NpzSource(Source):
         key = self.options.get("metadata", "metadata")
         if key not in self.members:
             return {}
-        raw = self._small(key)
-        try:
-            data = json.loads(str(raw.item()))
-        except (ValueError, TypeError) as exc:
-            raise MetadataError(
-                [f"expected JSON metadata; got invalid JSON ({exc})"], self._label(key)
-            ) from None
-        if not isinstance(data, dict):
-            raise MetadataError(["expected a JSON object"], self._label(key))
-        return data
+        return metadata_from_json(str(self._small(key).item()), self._label(key))
 
-    def time_length(self, meta: RunMeta) -> int | None:
+    def n_snapshots_for(self, meta: RunMeta) -> int | None:
         axes = self._axes(meta)
         return int(self._shape()[axes.index("time")])
 
@@ -141,7 +133,7 @@ class NpzSource(Source):
         if isinstance(arr, SequentialArray):
             arr.axes = axes
         try:
-            yield from array_blocks(arr, axes, times, chunk, series=series)
+            yield from array_batches(arr, axes, times, chunk, series=series)
         except (EOFError, zipfile.BadZipFile, OSError) as exc:
             raise DataError(
                 f"{self._label(self.mass_name)}: truncated or corrupt ({exc})"
@@ -169,7 +161,7 @@ class NpzFormat(Format):
     writable = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
-        if not head.startswith(b"PK\x03\x04") or len(head) < _LOCAL_HEADER.size:
+        if not head.startswith(ZIP_MAGIC) or len(head) < _LOCAL_HEADER.size:
             return False
         fields = _LOCAL_HEADER.unpack(head[: _LOCAL_HEADER.size])
         name = head[_LOCAL_HEADER.size : _LOCAL_HEADER.size + fields[-2]]
@@ -191,7 +183,7 @@ class NpzFormat(Format):
             if val is not None:
                 small[key] = val
         if run.meta is not None:
-            small["metadata"] = np.array(json.dumps(meta_dict(run.meta)))
+            small["metadata"] = np.array(meta_json(run.meta))
         with zipfile.ZipFile(path, "w", compression=method, allowZip64=True) as zf:
             with zf.open("mass.npy", "w", force_zip64=True) as fp:
                 write_npy_stream(fp, run, progress)

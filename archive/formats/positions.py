@@ -29,10 +29,10 @@ from massarc.schema import RunMeta
 
 from ..errors import DataError
 from ..reader import Run
+from ._export import export_lines, header_lines
 from ._lines import LineParser, LineReader, Rows, magic_of, read_preamble
 from ._options import guard_options
 from .registry import Batch, Events, Format, Progress, Source, register_format
-from .text import export_lines, header_lines
 
 __all__ = ["PositionsFormat", "occupations", "positions_lines"]
 
@@ -56,7 +56,7 @@ def occupations(rows: Rows, volume: int, name: str) -> np.ndarray:
 
 
 def positions_lines(replica: int, times: np.ndarray, mass: np.ndarray) -> str:
-    """Lines ``time s1 s2 ...`` (sorted particle sites) of a block ``(n, *lattice)``."""
+    """Lines ``time s1 s2 ...`` (sorted particle sites) of ``mass`` ``(n, *lattice)``."""
     flat = mass.reshape(len(times), -1)
     index = np.arange(flat.shape[1])
     out = []

@@ -68,7 +68,7 @@ class Batch:
     of each snapshot (text formats), for messages. ``series`` holds optional ``inflow`` /
     ``outflow`` arrays shaped like ``mass`` without the lattice axes. ``done`` is the
     progress so far in the source's unit; ``commit`` asks the writer to commit after this
-    block (live input that went idle).
+    batch (live input that went idle).
     """
 
     times: np.ndarray
@@ -100,18 +100,18 @@ class Source(ABC):
         How messages name the input (a path, ``path:/dataset``...).
     unit, total
         Progress unit (``"bytes"`` or ``"snapshots"``) and its total, when known (a
-        source may set ``total`` once :meth:`blocks` has started).
+        source may set ``total`` once :meth:`batches` has started).
     dtype
         An unsigned mass dtype worth keeping in the archive (None: choose from the data).
-    snapshots
-        Length of the time axis when known up front (caps the chunk length).
+    n_snapshots
+        Snapshots per replica when known up front (caps the chunk length).
     """
 
     name: str = ""
     unit: str = "snapshots"
     total: int | None = None
     dtype: np.dtype | None = None
-    snapshots: int | None = None
+    n_snapshots: int | None = None
     #: Things the user should know (what the format does not carry, ...).
     notes: tuple[str, ...] = ()
 
@@ -124,14 +124,15 @@ class Source(ABC):
         it wins over ``--meta``, and ``--set`` wins over it."""
         return {}
 
-    def time_length(self, meta: RunMeta) -> int | None:
-        """Length of the time axis under ``meta`` when known up front (else None)."""
-        return self.snapshots
+    def n_snapshots_for(self, meta: RunMeta) -> int | None:
+        """Snapshots per replica under ``meta`` (which names the axes of an array) when known
+        up front, else None."""
+        return self.n_snapshots
 
     @abstractmethod
     def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
-        """Snapshot blocks (and event-log stretches), replica after replica or in
-        lockstep; ``chunk`` is the archive's chunk length, a good block length."""
+        """Snapshot batches (and event-log stretches), replica after replica or in
+        lockstep; ``chunk`` is the archive's chunk length, a good batch length."""
 
     def close(self) -> None:  # noqa: B027  (optional hook: most sources hold nothing)
         """Release files; called once the conversion is over."""

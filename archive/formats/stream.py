@@ -1,10 +1,10 @@
 """The shared streaming path: a :class:`~.registry.Source` into a run archive.
 
 Every importer ends here. :func:`resolve_metadata` merges what the file carries with the
-user's metadata file and ``--set`` overrides; :class:`BatchFeeder` validates each block (naming
+user's metadata file and ``--set`` overrides; :class:`BatchFeeder` validates each batch (naming
 the input, line and (replica, snapshot, site) in its errors), cuts the stream into
 chunk-aligned appends so that every chunk is encoded once, and commits when a live source
-goes idle. Memory: one block of the source plus at most one chunk per replica.
+goes idle. Memory: one batch of the source plus at most one chunk per replica.
 """
 
 from __future__ import annotations
@@ -114,7 +114,7 @@ def archive_dtype(
 
 
 class BatchFeeder:
-    """Feed checked, chunk-aligned blocks into a writer.
+    """Feed checked, chunk-aligned batches into a writer.
 
     ``skip_committed``: drop input snapshots the (resumed) archive already holds, matching
     them by replica index and time, so that re-feeding a whole stream neither loses nor
@@ -140,7 +140,7 @@ class BatchFeeder:
         self._state = st
         self._skip = skip_committed
         limit = sentinel(writer.dtype) if writer.dtype is not None else None
-        self.checker = BatchGuard(
+        self.guard = BatchGuard(
             source_name,
             writer.meta,
             limit,
@@ -168,12 +168,12 @@ class BatchFeeder:
             return st.open_replica
         return 0
 
-    def _drop_committed(self, block: Batch, start: int, n: int) -> int:
-        """How many of the block's snapshots the archive holds already (their times were
-        checked against the archive's by the checker)."""
-        rep = 0 if block.replica is None else block.replica
+    def _drop_committed(self, batch: Batch, start: int, n: int) -> int:
+        """How many of the batch's snapshots the archive holds already (their times were
+        checked against the archive's by the guard)."""
+        rep = 0 if batch.replica is None else batch.replica
         n_old = max(0, min(n, self._committed(rep) - start))
-        self.skipped += n_old * (np.shape(block.mass)[0] if block.replica is None else 1)
+        self.skipped += n_old * (np.shape(batch.mass)[0] if batch.replica is None else 1)
         return n_old
 
     def _written(self, replica: int | None) -> int:
@@ -195,8 +195,8 @@ class BatchFeeder:
             )
             return
         rep = item.replica
-        start = self.checker.counts.get(0 if rep is None else rep, 0)
-        t, m = self.checker.check(item)
+        start = self.guard.counts.get(0 if rep is None else rep, 0)
+        t, m = self.guard.check(item)
         series = {k: np.asarray(v) for k, v in (item.series or {}).items()}
         if self._skip:
             n_old = self._drop_committed(item, start, len(t))
@@ -340,7 +340,7 @@ def write_source(
     input on bad data; the archive then stays incomplete.
     """
     lattice = tuple(meta.lattice.sites)
-    hint = source.time_length(meta)
+    hint = source.n_snapshots_for(meta)
     dtype = archive_dtype(meta, source.dtype, max_mass, None)
     items: Iterator[Batch | Events] = iter(
         source.batches(meta, chunk_snapshots(lattice, dtype, hint))
@@ -351,7 +351,7 @@ def write_source(
         if first is not None:
             BatchGuard(source.name, meta, None).check(first)  # report bad data first
         dtype = archive_dtype(meta, None, None, first)
-    # strict=False: every block passes the BatchFeeder's BatchGuard first, which makes the
+    # strict=False: every batch passes the BatchFeeder's BatchGuard first, which makes the
     # writer's checks with messages naming the input file and line; no second scan
     writer = create_run(
         location,
@@ -363,7 +363,7 @@ def write_source(
         strict=False,
     )
     writer.name = name or writer.name
-    pump = BatchFeeder(
+    feeder = BatchFeeder(
         writer,
         source.name,
         writer.chunk_snapshots,
@@ -372,9 +372,9 @@ def write_source(
     )
     with writer:  # on an error the writer stops with the archive incomplete
         for item in items:
-            pump.feed(item)
-        pump.finish()
-        if pump.appended == 0:
+            feeder.feed(item)
+        feeder.finish()
+        if feeder.appended == 0:
             raise DataError(f"{source.name}: expected at least one snapshot; found none")
         writer.close()
     return writer

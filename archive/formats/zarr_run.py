@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import json
 import zipfile
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from pathlib import Path
 from typing import Any, ClassVar
 
@@ -19,17 +19,15 @@ from massarc.schema import RunMeta
 from massarc.schema.spec import ATTRIBUTE_KEY, INFLOW, OUTFLOW
 
 from ..reader import Run, open_run
-from ._options import as_int, guard_options
+from ._metadata import meta_dict
+from ._options import ARCHIVE_WRITE_OPTIONS, archive_options, guard_options
+from ._signatures import ZIP_MAGIC
 from .registry import Batch, Events, Format, Progress, Source, register_format
 
 __all__ = ["RunSource", "ZarrFormat"]
 
+#: Events per stretch of the event log handed to the writer.
 _EVENT_STEP = 1 << 20
-
-
-def meta_dict(meta: RunMeta) -> dict[str, Any]:
-    """Metadata as the plain dict text formats embed and importers read back."""
-    return meta.model_dump(mode="json", exclude_none=True)
 
 
 class RunSource(Source):
@@ -41,7 +39,7 @@ class RunSource(Source):
         self.run = run
         self.name = run.name
         self.dtype = run.dtype if run.has_data else None
-        self.snapshots = run.n_snapshots
+        self.n_snapshots = run.n_snapshots
         self.total = run.n_replicas * run.n_snapshots
         if not run.complete:
             self.notes = (
@@ -58,13 +56,14 @@ class RunSource(Source):
         series = {k: run.series(k) for k in (INFLOW, OUTFLOW)}
         series = {k: v for k, v in series.items() if v is not None}
         done = 0
-        for b in run.chunks():
-            done += b.stop - b.start
+        for chunk in run.chunks():
+            span = slice(chunk.start, chunk.stop)
+            done += chunk.stop - chunk.start
             yield Batch(
-                times[b.start : b.stop],
-                b.mass,
-                replica=b.replica,
-                series={k: v[b.replica, b.start : b.stop] for k, v in series.items()} or None,
+                times[span],
+                chunk.mass,
+                replica=chunk.replica,
+                series={k: v[chunk.replica, span] for k, v in series.items()} or None,
                 done=done,
             )
         events = run.events
@@ -95,16 +94,13 @@ class ZarrFormat(Format):
     suffixes = (".zarr", ".zarr.zip")
     description = "massarc run archive (Zarr v3 directory, or a read-only .zip of one)"
     read_options: ClassVar[dict[str, str]] = {}
-    write_options: ClassVar[dict[str, str]] = {
-        "max-mass": "largest site mass to provide for (chooses the dtype; default: the total)",
-        "clevel": "zstd compression level 1-9 (default 5)",
-    }
+    write_options: ClassVar[Mapping[str, str]] = ARCHIVE_WRITE_OPTIONS
     writable = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
         if path.is_dir():
             return _is_run_dir(path)
-        if head.startswith(b"PK\x03\x04"):
+        if head.startswith(ZIP_MAGIC):
             with zipfile.ZipFile(path) as zf:
                 return "zarr.json" in zf.namelist()
         return False
@@ -122,14 +118,3 @@ class ZarrFormat(Format):
         source = RunSource(run)
         write_source(source, path, run.meta, progress=progress, **archive_options(options))
         return list(source.notes)
-
-
-def archive_options(options: dict[str, str]) -> dict[str, Any]:
-    """``max-mass`` and ``clevel`` as keyword arguments of :func:`.stream.write_source`."""
-    out: dict[str, Any] = {}
-    if "max-mass" in options:
-        out["max_mass"] = as_int(options["max-mass"], "max-mass", minimum=0)
-    if "clevel" in options:
-        level = as_int(options["clevel"], "clevel", minimum=1)
-        out["clevel"] = min(level, 9)
-    return out

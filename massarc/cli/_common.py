@@ -1,11 +1,13 @@
-"""Shared plumbing of the CLI commands: one-line errors with exit status 2, progress bars."""
+"""Shared plumbing of the CLI commands: one-line errors with exit status 2, the progress
+bar, and the options several commands take. Command modules import this module and never
+one another."""
 
 from __future__ import annotations
 
 import sys
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
-from typing import Any, NoReturn
+from typing import Any, NoReturn, TypeVar
 
 import click
 
@@ -13,9 +15,19 @@ from massarc.archive import ArchiveError
 from massarc.archive.progress import Progress
 from massarc.schema import MetadataError
 
-__all__ = ["EXIT_BAD_INPUT", "bad_input", "die", "progress_bar"]
+__all__ = [
+    "EXIT_BAD_INPUT",
+    "bad_input",
+    "die",
+    "key_values",
+    "metadata_options",
+    "progress_bar",
+    "rendering_option",
+]
 
 EXIT_BAD_INPUT = 2
+
+_F = TypeVar("_F", bound=Callable[..., Any])
 
 
 def die(command: str, message: str) -> NoReturn:
@@ -78,3 +90,41 @@ def progress_bar(label: str, *, quiet: bool = False) -> Iterator[Progress]:
     finally:
         if "bar" in state:
             state["bar"].stop()
+
+
+def key_values(items: tuple[str, ...], command: str) -> dict[str, str]:
+    """``--option key=value`` strings as a dict; a malformed one exits with status 2."""
+    out = {}
+    for item in items:
+        key, sep, value = item.partition("=")
+        if not sep or not key.strip():
+            die(command, f"--option {item!r}: expected KEY=VALUE")
+        out[key.strip()] = value.strip()
+    return out
+
+
+def metadata_options(func: _F) -> _F:
+    """The ``--meta FILE`` and ``--set KEY.PATH=VALUE`` options of convert and ingest."""
+    func = click.option(
+        "--set",
+        "overrides",
+        multiple=True,
+        metavar="KEY.PATH=VALUE",
+        help="Override one metadata entry (repeatable).",
+    )(func)
+    return click.option("--meta", "meta", metavar="FILE", help="Metadata file (TOML or JSON).")(
+        func
+    )
+
+
+def rendering_option(renderings: tuple[str, ...], help_text: str) -> Callable[[_F], _F]:
+    """The ``--as NAME`` option: how a command prints its result (the first is the
+    default); the command receives it as ``rendering``."""
+    return click.option(
+        "--as",
+        "rendering",
+        type=click.Choice(renderings),
+        default=renderings[0],
+        show_default=True,
+        help=help_text,
+    )

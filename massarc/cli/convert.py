@@ -5,45 +5,19 @@ The command parses options and reports; the work is :func:`massarc.archive.forma
 
 from __future__ import annotations
 
-from typing import Any
-
 import click
 
 from massarc.archive.formats import (
+    ConvertReport,
     collection_members,
     convert,
     convert_collection,
     format_listing,
 )
 
-from ._common import bad_input, die, progress_bar
+from ._common import bad_input, die, key_values, metadata_options, progress_bar
 
-__all__ = ["command", "key_values", "metadata_options"]
-
-
-def key_values(items: tuple[str, ...], command: str) -> dict[str, str]:
-    """``--option key=value`` strings as a dict; a malformed one exits with status 2."""
-    out = {}
-    for item in items:
-        key, sep, value = item.partition("=")
-        if not sep or not key.strip():
-            die(command, f"--option {item!r}: expected KEY=VALUE")
-        out[key.strip()] = value.strip()
-    return out
-
-
-def metadata_options(func: Any) -> Any:
-    """The ``--meta FILE`` and ``--set KEY.PATH=VALUE`` options convert and ingest share."""
-    func = click.option(
-        "--set",
-        "overrides",
-        multiple=True,
-        metavar="KEY.PATH=VALUE",
-        help="Override one metadata entry (repeatable).",
-    )(func)
-    return click.option("--meta", "meta", metavar="FILE", help="Metadata file (TOML or JSON).")(
-        func
-    )
+__all__ = ["command"]
 
 
 def _list_formats() -> None:
@@ -103,8 +77,12 @@ def command(
         return
     if src is None or dst is None:
         die("convert", "expected SRC and DST (or --list-formats)")
-    opts = key_values(options, "convert")
-    common = {"meta": meta, "overrides": overrides, "options": opts, "overwrite": overwrite}
+    shared = {
+        "meta": meta,
+        "overrides": overrides,
+        "options": key_values(options, "convert"),
+        "overwrite": overwrite,
+    }
     with bad_input("convert"):
         members = collection_members(src) if src_format in (None, "zarr") else None
     if members is not None:
@@ -117,9 +95,9 @@ def command(
         with bad_input("convert"), progress_bar(f"convert {src}", quiet=quiet) as progress:
             try:
                 for report in convert_collection(
-                    src, dst, dst_format=dst_format, progress=progress, **common
+                    src, dst, dst_format=dst_format, progress=progress, **shared
                 ):
-                    _tell(report, quiet)
+                    _print_report(report, quiet)
             except (IsADirectoryError, NotADirectoryError, OSError) as exc:
                 die("convert", f"{exc.filename or src}: {exc.strerror or exc}")
         return
@@ -127,20 +105,20 @@ def command(
         try:
             report = convert(
                 src, dst, src_format=src_format, dst_format=dst_format, progress=progress,
-                **common,
+                **shared,
             )  # fmt: skip
         except (IsADirectoryError, NotADirectoryError, OSError) as exc:
             die("convert", f"{exc.filename or src}: {exc.strerror or exc}")
-    _tell(report, quiet)
+    _print_report(report, quiet)
 
 
-def _tell(report: Any, quiet: bool) -> None:
+def _print_report(report: ConvertReport, quiet: bool) -> None:
     if quiet:
         return
     for note in report.notes:
         click.echo(f"massarc convert: note: {note}", err=True)
     sites = " x ".join(map(str, report.sites))
     click.echo(
-        f"{report.destination}: {report.replicas} replicas x {report.snapshots} snapshots "
+        f"{report.destination}: {report.n_replicas} replicas x {report.n_snapshots} snapshots "
         f"x {sites} sites ({report.source_format} -> {report.destination_format})"
     )

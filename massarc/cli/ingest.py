@@ -9,8 +9,7 @@ import click
 
 from massarc.archive.formats.ingest import ingest, open_input
 
-from ._common import bad_input, die, progress_bar
-from .convert import metadata_options
+from ._common import bad_input, die, metadata_options, progress_bar
 
 __all__ = ["command"]
 
@@ -66,5 +65,5 @@ def command(
         skipped = f", {report.skipped} already archived" if report.skipped else ""
         click.echo(
             f"{report.destination}: {report.appended} snapshots appended{skipped}; "
-            f"{report.replicas} replicas x {report.snapshots} snapshots, complete"
+            f"{report.n_replicas} replicas x {report.n_snapshots} snapshots, complete"
         )

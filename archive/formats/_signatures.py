@@ -1,0 +1,14 @@
+"""The first bytes by which the formats recognise binary files (their ``sniff``)."""
+
+from __future__ import annotations
+
+__all__ = ["HDF5_MAGIC", "NETCDF_CLASSIC_MAGIC", "NPY_MAGIC", "ZIP_MAGIC"]
+
+#: A ``.npy`` file, and every member of an ``.npz``.
+NPY_MAGIC = b"\x93NUMPY"
+#: An HDF5 file (NetCDF-4 files are HDF5 files too).
+HDF5_MAGIC = b"\x89HDF\r\n\x1a\n"
+#: NetCDF classic, 64-bit offset and CDF-5 files.
+NETCDF_CLASSIC_MAGIC = (b"CDF\x01", b"CDF\x02", b"CDF\x05")
+#: A zip file: an ``.npz``, or a zipped run archive.
+ZIP_MAGIC = b"PK\x03\x04"
