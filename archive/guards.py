@@ -1,5 +1,5 @@
-"""What the writer refuses to store: checks of one appended block, with the location of
-the first offence in the message (snapshot, or (replica, snapshot, site))."""
+"""What the writer refuses to store: guards of one append, with the location of the first
+offence in the message (snapshot, or (replica, snapshot, site))."""
 
 from __future__ import annotations
 
@@ -8,11 +8,11 @@ import numpy as np
 from .errors import DataError
 from .layout import sentinel
 
-__all__ = ["check_times", "first_bad_mass", "guard_masses"]
+__all__ = ["first_bad_mass", "guard_masses", "guard_times"]
 
 
-def check_times(name: str, t: np.ndarray, first: int, previous: float | None) -> None:
-    """Times finite and strictly increasing, also across the previous block's last time.
+def guard_times(name: str, t: np.ndarray, first: int, previous: float | None) -> None:
+    """Times finite and strictly increasing, also across the previous append's last time.
     ``first`` is the snapshot index of ``t[0]``."""
     if not np.all(np.isfinite(t)):
         i = int(np.argmin(np.isfinite(t)))

@@ -38,8 +38,7 @@ from massarc.schema.spec import (
 )
 
 from .errors import ArchiveError, DataError
-from .guards import check_times as _check_times
-from .guards import guard_masses
+from .guards import guard_masses, guard_times
 from .layout import (
     chunk_snapshots,
     create_run_arrays,
@@ -379,7 +378,7 @@ class RunWriter:
         self, t: np.ndarray, m: np.ndarray, first: int, rep0: int, check_times: bool
     ) -> None:
         if check_times:
-            _check_times(self.name, t, first, self.last_time)
+            guard_times(self.name, t, first, self.last_time)
         guard_masses(self.name, m, first, rep0, self._dtype)
 
     def _record_first_totals(self, m: np.ndarray, first: int, rep0: int) -> None:
