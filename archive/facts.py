@@ -60,7 +60,7 @@ def run_facts(run: Run) -> dict[str, Any]:
             simulator=meta.simulator.name if meta.simulator else None,
             created=meta.created,
         )
-    facts.update(replicas=run.n_replicas, snapshots=run.n_snapshots, complete=run.complete)
+    facts.update(n_replicas=run.n_replicas, n_snapshots=run.n_snapshots, complete=run.complete)
     if run.has_data:
         times = run.times
         stored = run.stored_bytes()

@@ -28,8 +28,8 @@ say "3. The two honest runs on their own (exit status 0; warnings do not fail)"
 echo "(exit status 0)"
 
 say "4. The same audit for a CI dashboard and for scripts"
-"$M" check samples --format junit --output "$WORK/audit.xml" || true
-"$M" check samples --format json --output "$WORK/audit.json" || true
+"$M" check samples --as junit --output "$WORK/audit.xml" || true
+"$M" check samples --as json --output "$WORK/audit.json" || true
 "$PY" - "$WORK/audit.json" <<'PY'
 import json, sys
 report = json.load(open(sys.argv[1]))

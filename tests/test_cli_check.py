@@ -43,7 +43,7 @@ def test_clean_run_exits_0(runs) -> None:
 
 
 def test_failing_run_exits_1_with_json(runs) -> None:
-    res = _run(str(runs["good"]), str(runs["bad"]), *BASIC, "--format", "json")
+    res = _run(str(runs["good"]), str(runs["bad"]), *BASIC, "--as", "json")
     assert res.exit_code == 1
     doc = json.loads(res.stdout)
     assert [r["status"] for r in doc["runs"]] == ["pass", "fail"]
@@ -53,14 +53,14 @@ def test_failing_run_exits_1_with_json(runs) -> None:
 
 def test_junit_to_a_file(runs, tmp_path) -> None:
     out = tmp_path / "report.xml"
-    res = _run(str(runs["bad"]), *BASIC, "--format", "junit", "--output", str(out))
+    res = _run(str(runs["bad"]), *BASIC, "--as", "junit", "--output", str(out))
     assert res.exit_code == 1 and res.stdout == ""
     root = ET.parse(out).getroot()
     assert (root.get("tests"), root.get("failures")) == ("3", "1")
 
 
 def test_collection_directory_gives_one_document(runs) -> None:
-    res = _run(str(runs["dir"]), *BASIC, "--format", "json", "--quiet")
+    res = _run(str(runs["dir"]), *BASIC, "--as", "json", "--quiet")
     assert res.exit_code == 1
     assert sorted(r["path"].rsplit("/", 1)[-1] for r in json.loads(res.stdout)["runs"]) == [
         "bad.zarr",
@@ -113,7 +113,7 @@ def test_usage_and_config_errors_exit_2(tmp_path, runs) -> None:
     _one_line_error(_run(), "expected at least one RUN_OR_COLLECTION")
     _one_line_error(_run(str(runs["good"]), "--colour"), "No such option")
     _one_line_error(_run(str(runs["good"]), "--only", "nope"), "--only: expected one of")
-    _one_line_error(_run(str(runs["good"]), "--format", "pdf"), "Invalid value for '--format'")
+    _one_line_error(_run(str(runs["good"]), "--as", "pdf"), "Invalid value for '--as'")
     bad = tmp_path / "massarc.toml"
     bad.write_text("strict = 'yes'\n")
     _one_line_error(_run(str(runs["good"]), "--config", str(bad)), "strict: expected true or false")

@@ -1,4 +1,5 @@
-"""``massarc check``: audit runs and collections; report as a table, JSON or JUnit XML.
+"""``massarc check``: audit runs and collections; render the report as a table, JSON or
+JUnit XML (``--as``).
 
 Exit status: 0 when no check failed, 1 when a check failed or raised, 2 when an input
 could not be read (not a Zarr group, not a massarc run, unknown major format version) or
@@ -22,9 +23,9 @@ from massarc.validators import (
     render,
     resolve_settings,
 )
-from massarc.validators.report import FORMATS, render_table
+from massarc.validators.report import RENDERINGS, render_table
 
-from ._common import bad_input, die, progress_bar
+from ._common import bad_input, die, progress_bar, rendering_option
 
 __all__ = ["command"]
 
@@ -54,13 +55,10 @@ def _listing() -> str:
 
 @click.command(_NAME, cls=_OneLineErrors)
 @click.argument("runs", nargs=-1, metavar="RUN_OR_COLLECTION...")
-@click.option(
-    "--format",
-    "fmt",
-    type=click.Choice(FORMATS),
-    default="table",
-    show_default=True,
-    help="table: for people; json: for scripts; junit: JUnit XML for CI systems.",
+@rendering_option(
+    RENDERINGS,
+    "How to render the report. table: for people; json: for scripts; junit: JUnit XML for "
+    "CI systems.",
 )
 @click.option("--output", "-o", type=click.Path(dir_okay=False), help="Write the report here.")
 @click.option("--strict/--no-strict", default=None, help="Warnings count as failures.")
@@ -83,7 +81,7 @@ def _listing() -> str:
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar; table: only non-passing.")
 def command(
     runs: tuple[str, ...],
-    fmt: str,
+    rendering: str,
     output: str | None,
     strict: bool | None,
     skip: tuple[str, ...],
@@ -128,14 +126,14 @@ def command(
     if output is not None:
         try:
             with Path(output).open("w", encoding="utf-8") as out:
-                if fmt == "table":
+                if rendering == "table":
                     render_table(report, out, quiet=quiet)
                 else:
-                    out.write(render(report, fmt))
+                    out.write(render(report, rendering))
         except OSError as exc:
             die(_NAME, f"{output}: cannot write the report ({exc.strerror})")
-    elif fmt == "table":
+    elif rendering == "table":
         render_table(report, sys.stdout, quiet=quiet)
     else:
-        click.echo(render(report, fmt), nl=False)
+        click.echo(render(report, rendering), nl=False)
     sys.exit(report.exit_code)

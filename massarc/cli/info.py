@@ -10,10 +10,15 @@ import click
 from massarc.archive import open_runs
 from massarc.archive.facts import run_facts
 
-from ._common import bad_input
+from ._common import bad_input, rendering_option
+
+__all__ = ["RENDERINGS", "command"]
+
+#: How ``massarc info --as NAME`` prints the facts.
+RENDERINGS = ("text", "json")
 
 
-def _size(n: float) -> str:
+def _size_text(n: float) -> str:
     for unit in ("B", "KiB", "MiB", "GiB"):
         if n < 1024 or unit == "GiB":
             return f"{n:.0f} {unit}" if unit == "B" else f"{n:.1f} {unit}"
@@ -21,7 +26,7 @@ def _size(n: float) -> str:
     return f"{n:.1f} TiB"  # pragma: no cover
 
 
-def _lines(f: dict[str, Any]) -> list[str]:
+def _text_lines(f: dict[str, Any]) -> list[str]:
     if "problems" in f:
         return [f"{f['path']}", "  metadata invalid: " + "; ".join(f["problems"])]
     sites = " x ".join(str(s) for s in f["lattice"])
@@ -35,7 +40,7 @@ def _lines(f: dict[str, Any]) -> list[str]:
     ]
     if f.get("total_mass") is not None:
         out.append(f"  mass       {f['total_mass']} per replica, density {f['density']:.6g}")
-    shape = f"{f['replicas']} replicas x {f['snapshots']} snapshots"
+    shape = f"{f['n_replicas']} replicas x {f['n_snapshots']} snapshots"
     out.append(
         f"  data       {shape}" + ("" if f["complete"] else " (INCOMPLETE: writer did not finish)")
     )
@@ -45,8 +50,9 @@ def _lines(f: dict[str, Any]) -> list[str]:
         ratio = f"{f['compression']:.1f}x" if f["compression"] else "n/a"
         vs32 = f"{f['compression_vs_int32']:.1f}x" if f["compression_vs_int32"] else "n/a"
         out.append(
-            f"  storage    {f['dtype']}, {_size(f['bytes'])} raw, {_size(f['stored_bytes'])} "
-            f"stored ({ratio}; {vs32} against int32), chunks {f['chunk']}"
+            f"  storage    {f['dtype']}, {_size_text(f['bytes'])} raw, "
+            f"{_size_text(f['stored_bytes'])} stored ({ratio}; {vs32} against int32), "
+            f"chunks {f['chunk']}"
         )
     if f.get("events"):
         out.append(f"  events     {f['events']} archived moves")
@@ -59,21 +65,14 @@ def _lines(f: dict[str, Any]) -> list[str]:
 
 @click.command("info")
 @click.argument("locations", nargs=-1, required=True)
-@click.option(
-    "--format",
-    "fmt",
-    type=click.Choice(["text", "json"]),
-    default="text",
-    show_default=True,
-    help="Human-readable lines or one JSON document.",
-)
-def command(locations: tuple[str, ...], fmt: str) -> None:
+@rendering_option(RENDERINGS, "How to print the facts: human-readable lines or one JSON document.")
+def command(locations: tuple[str, ...], rendering: str) -> None:
     """Describe runs (or every run of a collection): model, lattice, data, storage."""
     facts = []
     with bad_input("info"):
         for loc in locations:
             facts.extend(run_facts(run) for run in open_runs(loc, lenient=True))
-    if fmt == "json":
+    if rendering == "json":
         click.echo(json.dumps({"runs": facts}, indent=2))
         return
-    click.echo("\n\n".join("\n".join(_lines(f)) for f in facts))
+    click.echo("\n\n".join("\n".join(_text_lines(f)) for f in facts))

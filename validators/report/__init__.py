@@ -19,7 +19,7 @@ from .model import AuditReport, RunReport
 from .table import STATUS_STYLE, render_table
 
 __all__ = [
-    "FORMATS",
+    "RENDERINGS",
     "STATUS_STYLE",
     "AuditReport",
     "RunReport",
@@ -30,18 +30,18 @@ __all__ = [
     "report_junit",
 ]
 
-#: Names of the report formats.
-FORMATS = ("table", "json", "junit")
+#: Names of the renderings of a report (``massarc check --as NAME``).
+RENDERINGS = ("table", "json", "junit")
 
 
-def render(report: AuditReport, fmt: str = "table") -> str:
-    """The report as text in one of :data:`FORMATS` (the table without colour)."""
-    if fmt == "json":
+def render(report: AuditReport, rendering: str = "table") -> str:
+    """The report as text in one of :data:`RENDERINGS` (the table without colour)."""
+    if rendering == "json":
         return report_json(report)
-    if fmt == "junit":
+    if rendering == "junit":
         return report_junit(report)
-    if fmt == "table":
+    if rendering == "table":
         buf = io.StringIO()
         render_table(report, buf)
         return buf.getvalue()
-    raise ValueError(f"report format: expected one of {', '.join(FORMATS)}; got {fmt!r}")
+    raise ValueError(f"rendering: expected one of {', '.join(RENDERINGS)}; got {rendering!r}")
