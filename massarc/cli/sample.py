@@ -62,6 +62,7 @@ def _mass(meta: Any, mass: int | None, density: float | None) -> int | None:
 )
 @click.option(
     "--replicas",
+    "n_replicas",
     metavar="R",
     type=click.IntRange(min=1),
     required=True,
@@ -78,7 +79,11 @@ def _mass(meta: Any, mass: int | None, density: float | None) -> int | None:
     help="Time of the last snapshot (> 0).",
 )
 @click.option(
-    "--snapshots", type=click.IntRange(min=1), required=True, help="Snapshots per replica."
+    "--snapshots",
+    "n_snapshots",
+    type=click.IntRange(min=1),
+    required=True,
+    help="Snapshots per replica.",
 )
 @click.option(
     "--spacing",
@@ -109,10 +114,10 @@ def command(
     out: str,
     meta_path: str,
     overrides: tuple[str, ...],
-    replicas: int,
+    n_replicas: int,
     seed: int,
     t_max: float,
-    snapshots: int,
+    n_snapshots: int,
     spacing: str,
     initial: str | None,
     mass: int | None,
@@ -141,12 +146,12 @@ def command(
     argv = ctx.meta.get("massarc.argv")
     line = shlex.join(["massarc", _NAME, *argv]) if argv is not None else None
     try:
-        times = snapshot_times(t_max, snapshots, spacing)  # type: ignore[arg-type]
+        times = snapshot_times(t_max, n_snapshots, spacing)  # type: ignore[arg-type]
         with progress_bar("sampling", quiet=quiet) as progress:
             simulate(
                 meta,
                 times,
-                replicas=replicas,
+                replicas=n_replicas,
                 seed=seed,
                 mass=total,
                 initial=initial or "random",
