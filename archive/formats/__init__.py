@@ -2,7 +2,10 @@
 
 * :mod:`.registry`: the :class:`Format` contract, registration (built-ins and the
   ``massarc.formats`` entry-point group) and detection;
-* one module per format; :mod:`.stream` is the shared path into an archive;
+* one module per format, which no other module imports (only :mod:`.builtin`, to register
+  them): what several formats share lives in private modules (``_arrays``, ``_axes``,
+  ``_csv``, ``_export``, ``_lines``, ``_metadata``, ...); :mod:`.stream` is the shared path
+  into an archive;
 * :func:`convert` (any format to any format), :func:`convert_collection` (every run of
   a sweep) and :func:`ingest` (live text on a pipe).
 """

@@ -1,6 +1,7 @@
 """The ``massarc`` command line. Each command lives in its own module (exposing ``command``)
 and is listed in :data:`COMMANDS`; a module is imported only when its command runs, so
-``massarc --help`` and ``massarc --version`` start instantly."""
+``massarc --help`` and ``massarc --version`` start instantly. What commands share (errors,
+the progress bar, common options) lives in :mod:`._common`; no command imports another."""
 
 from __future__ import annotations
 
