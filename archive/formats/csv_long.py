@@ -33,7 +33,7 @@ from ..reader import Run
 from ._lines import LineParser, LineReader, Rows, csv_columns, read_csv_head
 from ._options import guard_options
 from .csv_wide import replica_runs
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 from .text import export_lines, meta_comment
 
 __all__ = ["CsvLongFormat"]
@@ -234,7 +234,6 @@ def _rows(lattice: tuple[int, ...], replica: int, times: np.ndarray, mass: np.nd
     return "".join(out)
 
 
-@register_format
 class CsvLongFormat(Format):
     name = "csv-long"
     suffixes = (".csv", ".long.csv")

@@ -28,7 +28,7 @@ from ..errors import DataError
 from ..reader import Run
 from ._lines import LineParser, LineReader, csv_columns, read_csv_head
 from ._options import guard_options
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 from .text import export_lines, meta_comment
 
 __all__ = ["CsvWideFormat", "replica_runs"]
@@ -141,7 +141,6 @@ def _rows(replica: int, times: np.ndarray, mass: np.ndarray) -> str:
     )
 
 
-@register_format
 class CsvWideFormat(Format):
     name = "csv-wide"
     suffixes = (".wide.csv",)

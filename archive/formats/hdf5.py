@@ -31,7 +31,7 @@ from ..reader import Run
 from ._arrays import array_blocks
 from ._options import guard_options, parse_axes
 from .npy import axes_for, times_for
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 from .zarr_run import meta_dict
 
 __all__ = ["HDF5Format", "attr_value", "mapped_attrs"]
@@ -162,7 +162,6 @@ class HDF5Source(Source):
         self.file.close()
 
 
-@register_format
 class HDF5Format(Format):
     name = "hdf5"
     suffixes = (".h5", ".hdf5", ".hdf")

@@ -32,7 +32,7 @@ from ._arrays import array_blocks, lattice_axes
 from ._options import guard_options
 from .hdf5 import HDF5_MAGIC, META_ATTR, json_attr, mapped_attrs
 from .npy import times_for
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 from .zarr_run import meta_dict
 
 __all__ = ["NetCDFFormat"]
@@ -163,7 +163,6 @@ class NetCDFSource(Source):
         self.ds.close()
 
 
-@register_format
 class NetCDFFormat(Format):
     name = "netcdf"
     suffixes = (".nc", ".nc4", ".netcdf")

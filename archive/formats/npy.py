@@ -27,7 +27,7 @@ from ..errors import DataError
 from ..reader import Run
 from ._arrays import array_blocks
 from ._options import default_axes, guard_options, parse_axes, parse_times
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["NpyFormat", "axes_for", "read_npy_header", "times_for", "write_npy_stream"]
 
@@ -148,7 +148,6 @@ class NpySource(Source):
             mm.close()
 
 
-@register_format
 class NpyFormat(Format):
     name = "npy"
     suffixes = (".npy",)

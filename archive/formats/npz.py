@@ -32,7 +32,7 @@ from ..reader import Run
 from ._arrays import SequentialArray, array_blocks
 from ._options import as_bool, guard_options
 from .npy import axes_for, read_npy_header, times_for, write_npy_stream
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 from .zarr_run import meta_dict
 
 __all__ = ["NpzFormat"]
@@ -151,7 +151,6 @@ class NpzSource(Source):
         self.zf.close()
 
 
-@register_format
 class NpzFormat(Format):
     name = "npz"
     suffixes = (".npz",)

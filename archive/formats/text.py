@@ -38,7 +38,7 @@ from ..errors import DataError
 from ..reader import Run
 from ._lines import META_PREFIX, LineParser, LineReader, Rows, magic_of, read_preamble
 from ._options import guard_options
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 from .zarr_run import meta_dict
 
 __all__ = [
@@ -176,7 +176,6 @@ def looks_numeric(head: bytes, comma: bool = False) -> bool:
     return False
 
 
-@register_format
 class TextFormat(Format):
     name = "text"
     suffixes = (".txt", ".dat", ".text")

@@ -20,7 +20,7 @@ from massarc.schema.spec import ATTRIBUTE_KEY, INFLOW, OUTFLOW
 
 from ..reader import Run, open_run
 from ._options import as_int, guard_options
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["RunSource", "ZarrFormat"]
 
@@ -89,7 +89,6 @@ def _is_run_dir(path: Path) -> bool:
     return isinstance(attrs, dict) and ATTRIBUTE_KEY in attrs
 
 
-@register_format
 class ZarrFormat(Format):
     name = "zarr"
     suffixes = (".zarr", ".zarr.zip")
