@@ -1,7 +1,8 @@
 """The ``steady-state`` check: is a run labelled stationary stationary, and from when?
 
 Observables: per snapshot the largest mass, the sum of m^2 and the number of occupied
-sites, over all replicas. The analysis is :func:`massarc.validators.window.stationary_window`
+sites, over all replicas. The analysis is
+:func:`massarc.validators.analysis.window.stationary_window`
 (its docstring gives every definition); this module turns it into a verdict.
 
 Null hypothesis (``run.regime = "stationary"``): from the detected start on, every

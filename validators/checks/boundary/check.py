@@ -1,6 +1,6 @@
 """The ``boundary`` check: do the declared boundaries agree with the data?
 
-From snapshots (statistical; :mod:`massarc.validators.boundary_stats`). Along every axis
+From snapshots (statistical; :mod:`.seam`). Along every axis
 of at least 8 sites, the seam pair (last site, site 0) is compared with interior bonds and
 with distant site pairs through the correlation of their sign increments between
 consecutive snapshots (the ``increments`` statistic):
@@ -18,7 +18,7 @@ distant pairs are too close for a seam of the other kind to be caught (snapshots
 apart to resolve single moves, or hardly any motion), the axis cannot be judged and the
 check warns, reporting the measured interior-bond correlation.
 
-From the event log (exact; :mod:`massarc.validators.boundary_events`). When the run
+From the event log (exact; :mod:`.events`). When the run
 archives an ``events`` group, every move must join declared neighbours; the first that
 does not is reported (index, replica, time, source, target) and the check fails. A clean
 log settles axes the snapshots could not resolve.

@@ -8,7 +8,7 @@ single-site law P(m) = f(m) Z(N-1, M-m) / Z(N, M) is exact at finite size
 H0: the time-averaged single-site occupation law over the stationary window (all sites,
 snapshots and replicas pooled) is P. Statistic: Pearson's X^2 on the pooled counts with
 merged bins, divided by the trace of the design-effect matrix estimated by batch means
-(second-order Rao-Scott correction in F form, :mod:`massarc.validators.law_fit`); p-value
+(second-order Rao-Scott correction in F form, :mod:`.law_fit`); p-value
 from F(nu, nu (m - 1)) for m batches and Satterthwaite's nu. Batches are whole replicas when
 there are at least ``min_batches`` of them, otherwise runs of consecutive histogram blocks
 of each replica, each at least ``batch_factor`` times the window's statistical
