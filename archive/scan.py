@@ -20,35 +20,51 @@ chunks that could not be read, which the statistic must treat as missing data.
 ``prepare(peers)`` (optional) is called once before the pass with every statistic of it,
 so that statistics can share work. A statistic that raises is dropped from the pass (its
 message is in :attr:`ScanResult.errors`); the others go on.
+
+Registry
+--------
+Statistics are found by name in :data:`STATISTICS` (see :mod:`massarc.archive.registry`):
+the built-ins listed by :func:`massarc.archive.stats.builtin_statistics`, then third-party
+statistics from the entry-point group ``massarc.statistics`` or :func:`register_statistic`.
+A check may also bring a statistic of its own (``Check.provides``).
 """
 
 from __future__ import annotations
 
+import inspect
 import itertools
 import math
 import os
 import time
 from abc import ABC, abstractmethod
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Hashable, Mapping
 from concurrent.futures import FIRST_COMPLETED, Future, ThreadPoolExecutor, wait
 from dataclasses import dataclass, field
-from typing import Any, ClassVar
+from typing import Any, ClassVar, Generic, TypeVar
 
 import numpy as np
 
 from ._chunk_read import ChunkReader, MissingChunk
 from .progress import Progress
 from .reader import Chunk, ChunkRef, Run
+from .registry import Registry
 
 __all__ = [
+    "ENTRY_POINT_GROUP",
+    "STATISTICS",
     "ChunkFault",
     "ScanResult",
     "Statistic",
     "available_statistics",
     "default_workers",
+    "get_statistic",
     "register_statistic",
     "scan",
 ]
+
+#: Entry-point group of third-party statistics.
+ENTRY_POINT_GROUP = "massarc.statistics"
+K = TypeVar("K", bound=Hashable)
 
 
 @dataclass(frozen=True)
@@ -93,40 +109,74 @@ class Statistic(ABC):
         """The reduced result."""
 
 
-_REGISTRY: dict[str, type[Statistic]] = {}
+def _validate_statistic(cls: Any, origin: str) -> None:
+    """Refuse a class that breaks the contract of a statistic (``TypeError``)."""
+    if not (isinstance(cls, type) and issubclass(cls, Statistic)):
+        raise TypeError(
+            f"{origin}: expected a subclass of massarc.archive.scan.Statistic; got {cls!r}"
+        )
+    name = getattr(cls, "name", None)
+    if not isinstance(name, str) or not name:
+        raise TypeError(
+            f"{origin}: expected {cls.__name__}.name to be a non-empty string; got {name!r}"
+        )
+    if not isinstance(cls.pairs, bool):
+        raise TypeError(
+            f"{origin}: expected {cls.__name__}.pairs to be true or false; got {cls.pairs!r}"
+        )
+    if inspect.isabstract(cls):
+        missing = ", ".join(sorted(cls.__abstractmethods__))
+        raise TypeError(f"{origin}: expected {cls.__name__} to define {missing}")
+    if cls.pairs and cls.pair is Statistic.pair:
+        raise TypeError(f"{origin}: {cls.__name__}.pairs is true: expected it to define pair()")
+
+
+def _builtin_statistics() -> tuple[type[Statistic], ...]:
+    from .stats import builtin_statistics
+
+    return builtin_statistics()
+
+
+#: The statistic registry: built-ins from :func:`massarc.archive.stats.builtin_statistics`,
+#: plugins from the entry-point group ``massarc.statistics``.
+STATISTICS: Registry[Statistic] = Registry(
+    "statistic", "name", ENTRY_POINT_GROUP, _validate_statistic, _builtin_statistics
+)
 
 
 def register_statistic(cls: type[Statistic]) -> type[Statistic]:
-    """Register a statistic class under its ``name`` (usable as a decorator)."""
-    name = getattr(cls, "name", None)
-    if not isinstance(name, str) or not name:
-        raise TypeError(f"expected {cls.__name__}.name to be a non-empty string; got {name!r}")
-    if name in _REGISTRY and _REGISTRY[name] is not cls:
-        raise ValueError(f"statistic {name!r} is already registered by {_REGISTRY[name]}")
-    _REGISTRY[name] = cls
-    return cls
+    """Register a third-party statistic class under its ``name`` (usable as a decorator).
+
+    Third parties also list the class in the entry-point group ``massarc.statistics`` so
+    that it is found without importing their module first; both together are fine.
+    """
+    return STATISTICS.register(cls)
 
 
-def available_statistics() -> dict[str, type[Statistic]]:
-    """Registered statistics by name."""
-    return dict(_REGISTRY)
+def available_statistics() -> Mapping[str, type[Statistic]]:
+    """Registered statistics by name: built-ins, then plugins (read-only)."""
+    return STATISTICS.available()
+
+
+def get_statistic(name: str) -> type[Statistic]:
+    """The statistic class registered as ``name``; the error lists the known names."""
+    return STATISTICS.get(name)
 
 
 @dataclass
-class ScanResult:
-    """Results by statistic name, the chunks that could not be read, and counters.
+class ScanResult(Generic[K]):
+    """What one pass gives: results and errors by the keys the statistics were passed
+    under, the chunks that could not be read, and counters.
 
-    ``results`` holds the first instance of each name; ``ordered`` holds one result per
-    statistic passed to :func:`scan`, in that order (None for one that raised), and
-    ``errors`` the one-line message of each statistic that raised, by its position.
+    ``results`` holds the result of every statistic that finished; ``errors`` the
+    one-line message of every statistic that raised (it has no result).
     """
 
-    results: dict[str, Any]
+    results: dict[K, Any]
+    errors: dict[K, str] = field(default_factory=dict)
     faults: list[ChunkFault] = field(default_factory=list)
     chunks_read: int = 0
     bytes_decoded: int = 0
-    ordered: list[Any] = field(default_factory=list)
-    errors: dict[int, str] = field(default_factory=dict)
     seconds: float = 0.0
 
 
@@ -179,7 +229,10 @@ def _missing_chunks(run: Run, refs: list[ChunkRef]) -> dict[int, str]:
 
 
 @dataclass
-class _Done:
+class _ChunkOutcome:
+    """What a worker thread made of one chunk: its fault, or the statistics' partials
+    (by position in the pass) and its edge rows."""
+
     index: int
     fault: ChunkFault | None = None
     partials: list[Any] = field(default_factory=list)
@@ -188,7 +241,9 @@ class _Done:
     nbytes: int = 0
 
 
-class _Raised:
+class _FailedPartial:
+    """Stands for the partial of a statistic whose ``chunk`` raised."""
+
     def __init__(self, exc: BaseException) -> None:
         self.message = _one_line(exc)
 
@@ -200,13 +255,13 @@ def _work(
     stats: list[Statistic],
     broken: dict[int, str],
     edges: bool,
-) -> _Done:
+) -> _ChunkOutcome:
     try:
         block = reader.read(ref)
     except MissingChunk as exc:
-        return _Done(index, fault=ChunkFault(ref, "missing", str(exc)))
+        return _ChunkOutcome(index, fault=ChunkFault(ref, "missing", str(exc)))
     except Exception as exc:  # any decode failure is a fault of this chunk only
-        return _Done(index, fault=ChunkFault(ref, "corrupt", _one_line(exc)))
+        return _ChunkOutcome(index, fault=ChunkFault(ref, "corrupt", _one_line(exc)))
     partials: list[Any] = []
     for k, s in enumerate(stats):
         if k in broken:
@@ -215,15 +270,19 @@ def _work(
         try:
             partials.append(s.chunk(block))
         except Exception as exc:
-            partials.append(_Raised(exc))
-    done = _Done(index, partials=partials, nbytes=int(block.mass.nbytes))
+            partials.append(_FailedPartial(exc))
+    done = _ChunkOutcome(index, partials=partials, nbytes=int(block.mass.nbytes))
     if edges and len(block.mass):
         done.first, done.last = block.mass[0].copy(), block.mass[-1].copy()
     return done
 
 
-class _Pass:
-    """State of one pass in the calling thread: merging, edge pairs, faults, errors."""
+class _PassState:
+    """State of one pass in the calling thread: merging, edge pairs, faults, errors.
+
+    Statistics are addressed by their position in ``stats``; :func:`scan` maps positions
+    back to the caller's keys.
+    """
 
     def __init__(self, refs: list[ChunkRef], stats: list[Statistic]) -> None:
         self.refs = refs
@@ -237,7 +296,8 @@ class _Pass:
         self.read = 0
         self.nbytes = 0
 
-    def _call(self, k: int, fn: Callable[..., Any], *args: Any) -> None:
+    def call(self, k: int, fn: Callable[..., Any], *args: Any) -> None:
+        """``fn(*args)`` for statistic ``k``; an exception marks it broken."""
         try:
             fn(*args)
         except Exception as exc:
@@ -254,9 +314,9 @@ class _Pass:
         ref = self.refs[later]
         for k in self.pairing:
             if k not in self.broken:
-                self._call(k, self.stats[k].pair, ref.replica, ref.start, before, after)
+                self.call(k, self.stats[k].pair, ref.replica, ref.start, before, after)
 
-    def resolve(self, done: _Done) -> None:
+    def resolve(self, done: _ChunkOutcome) -> None:
         i = done.index
         if done.fault is not None:
             self.faults.append(done.fault)
@@ -268,10 +328,10 @@ class _Pass:
             for k, (s, part) in enumerate(zip(self.stats, done.partials, strict=True)):
                 if k in self.broken:
                     continue
-                if isinstance(part, _Raised):
+                if isinstance(part, _FailedPartial):
                     self.broken[k] = part.message
                 else:
-                    self._call(k, s.merge, ref, part)
+                    self.call(k, s.merge, ref, part)
             self.state[i] = True
         if not self.pairing:
             return
@@ -293,15 +353,17 @@ class _Pass:
 
 def scan(
     run: Run,
-    statistics: Iterable[Statistic],
+    statistics: Mapping[K, Statistic],
     *,
     progress: Progress | None = None,
     workers: int | None = None,
     in_flight: int | None = None,
     direct: bool = True,
-) -> ScanResult:
+) -> ScanResult[K]:
     """Read every committed chunk of ``run`` once and feed it to every statistic.
 
+    ``statistics`` maps keys of the caller's choosing to statistics; the results and the
+    errors of the :class:`ScanResult` come back under the same keys.
     ``progress(done, total, "chunks")`` is called (in the calling thread) after each chunk. A chunk
     that fails to decode (checksum mismatch, truncated file) or whose storage object is
     missing (found by listing the store once, before the pass) becomes a
@@ -310,16 +372,19 @@ def scan(
     twice the workers) are decoded or waiting at any time. ``direct=False`` decodes every
     chunk through zarr-python (see :mod:`massarc.archive._chunk_read`).
 
-    >>> from massarc.archive.stats import SnapshotStatistic   # doctest: +SKIP
-    >>> res = scan(run, [SnapshotStatistic(run)])               # doctest: +SKIP
-    >>> res.results["snapshots"].total.shape == (run.n_replicas, run.n_snapshots)  # doctest: +SKIP
+    >>> from massarc.archive import open_run
+    >>> from massarc.archive.stats import SnapshotStatistic
+    >>> run = open_run("samples/dune-strip.zarr")
+    >>> res = scan(run, {"snapshots": SnapshotStatistic(run)})
+    >>> res.results["snapshots"].total.shape == (run.n_replicas, run.n_snapshots)
     True
     """
     started = time.perf_counter()
-    stats = list(statistics)
-    state = _Pass(run.chunk_refs(), stats)
+    keys = list(statistics)
+    stats = list(statistics.values())
+    state = _PassState(run.chunk_refs(), stats)
     for k, s in enumerate(stats):
-        state._call(k, s.prepare, stats)
+        state.call(k, s.prepare, stats)
     refs = state.refs
     reader = ChunkReader(run, direct=direct)
     # the direct reader finds absent chunk files as it opens them; zarr would fill them in
@@ -328,7 +393,7 @@ def scan(
     limit = max(1, in_flight or 2 * n_workers)
     edges = bool(state.pairing)
     done_count = 0
-    pending: set[Future[_Done]] = set()
+    pending: set[Future[_ChunkOutcome]] = set()
     order = iter(range(len(refs)))
 
     def tick() -> None:
@@ -345,7 +410,8 @@ def scan(
                 if i is None:
                     break
                 if i in missing:
-                    state.resolve(_Done(i, fault=ChunkFault(refs[i], "missing", missing[i])))
+                    fault = ChunkFault(refs[i], "missing", missing[i])
+                    state.resolve(_ChunkOutcome(i, fault=fault))
                     tick()
                     continue
                 pending.add(pool.submit(_work, reader, i, refs[i], stats, state.broken, edges))
@@ -358,25 +424,18 @@ def scan(
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
     faults = sorted(state.faults, key=lambda f: (f.ref.replica, f.ref.start))
-    ordered: list[Any] = []
+    results: dict[K, Any] = {}
     for k, s in enumerate(stats):
-        result = None
         if k not in state.broken:
             try:
-                result = s.finish(list(faults))
+                results[keys[k]] = s.finish(list(faults))
             except Exception as exc:
                 state.broken[k] = _one_line(exc)
-        ordered.append(result)
-    results: dict[str, Any] = {}
-    for k, s in enumerate(stats):
-        if k not in state.broken:
-            results.setdefault(s.name, ordered[k])
     return ScanResult(
-        results,
-        faults,
-        state.read,
-        state.nbytes,
-        ordered,
-        dict(state.broken),
-        time.perf_counter() - started,
+        results=results,
+        errors={keys[k]: message for k, message in sorted(state.broken.items())},
+        faults=faults,
+        chunks_read=state.read,
+        bytes_decoded=state.nbytes,
+        seconds=time.perf_counter() - started,
     )

@@ -101,7 +101,7 @@ def read_pass(path: Path, workers: int) -> int:
     from massarc.archive import open_run
     from massarc.archive.scan import scan
 
-    res = scan(open_run(path), [], workers=workers)
+    res = scan(open_run(path), {}, workers=workers)
     assert not res.faults, res.faults
     return res.bytes_decoded
 

@@ -31,8 +31,9 @@ import numpy as np
 
 from massarc.archive import create_run, open_run
 from massarc.archive.scan import scan
-from massarc.archive.stats import HistogramStatistic, IncrementStatistic, SnapshotStatistic
+from massarc.archive.stats import HistogramStatistic, SnapshotStatistic
 from massarc.schema import parse_metadata
+from massarc.validators.checks.boundary.increments import IncrementStatistic
 
 OUT = Path(__file__).resolve().parent / "out" / "increments.json"
 LATTICES = {"ring-1000": (1000,), "torus-128x128": (128, 128)}
@@ -65,13 +66,16 @@ def _best(fn: Any, repeats: int) -> float:
 def measure(path: Path, repeats: int) -> dict[str, float]:
     run = open_run(path)
     passes = {
-        "decode": lambda: [],
-        "basic": lambda: [SnapshotStatistic(run), HistogramStatistic(run)],
-        "basic+increments": lambda: [
-            SnapshotStatistic(run),
-            HistogramStatistic(run),
-            IncrementStatistic(run),
-        ],
+        "decode": lambda: {},
+        "basic": lambda: {
+            "snapshots": SnapshotStatistic(run),
+            "histogram": HistogramStatistic(run),
+        },
+        "basic+increments": lambda: {
+            "snapshots": SnapshotStatistic(run),
+            "histogram": HistogramStatistic(run),
+            "increments": IncrementStatistic(run),
+        },
     }
     out = {
         name: _best(lambda make=make: scan(run, make()), repeats) for name, make in passes.items()

@@ -29,11 +29,11 @@ import numpy as np
 
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
-from massarc.archive.stats import IncrementStatistic
 from massarc.schema import RunMeta, parse_metadata
 from massarc.simulate import simulate
+from massarc.validators import CheckContext
 from massarc.validators.checks.boundary import BoundaryCheck
-from massarc.validators.registry import CheckContext
+from massarc.validators.checks.boundary.increments import IncrementStatistic
 
 OUT = Path(__file__).resolve().parent / "out" / "calibrate_boundary.json"
 TIMES = np.arange(300) * 0.5
@@ -65,8 +65,8 @@ def _redeclare(run: Run, boundary: list[str]) -> Run:
 
 
 def _check(run: Run) -> tuple[str, float | None]:
-    stats = scan(run, [IncrementStatistic(run)]).results
-    res = BoundaryCheck().run(CheckContext(run, run.meta, stats, {}))
+    stats = scan(run, {"increments": IncrementStatistic(run)}).results
+    res = BoundaryCheck().run(CheckContext(run, run.meta, stats, BoundaryCheck.option_values()))
     return res.status, res.values.get("p_value")
 
 

@@ -32,8 +32,8 @@ from massarc.archive.scan import scan
 from massarc.archive.stats import HistogramStatistic, SnapshotStatistic
 from massarc.schema import parse_metadata
 from massarc.simulate import simulate
+from massarc.validators import CheckContext
 from massarc.validators.checks.stationary_law import StationaryLawCheck
-from massarc.validators.registry import CheckContext
 
 OUT = Path(__file__).resolve().parent / "out" / "calibrate_stationary_law.json"
 
@@ -63,8 +63,9 @@ def _meta(sites: tuple[int, ...], boundary: str, drift: str, b: float):
 
 
 def _check(run: Run) -> tuple[str, float]:
-    stats = scan(run, [HistogramStatistic(run), SnapshotStatistic(run)]).results
-    res = StationaryLawCheck().run(CheckContext(run, run.meta, stats, {}))
+    stats = {"histogram": HistogramStatistic(run), "snapshots": SnapshotStatistic(run)}
+    options = StationaryLawCheck.option_values()
+    res = StationaryLawCheck().run(CheckContext(run, run.meta, scan(run, stats).results, options))
     p = res.values.get("p_value")
     return res.status, float("nan") if p is None else float(p)
 

@@ -40,8 +40,8 @@ from massarc.archive.scan import scan
 from massarc.archive.stats import SnapshotStatistic, SnapshotStats
 from massarc.schema import RunMeta, parse_metadata
 from massarc.simulate import simulate
+from massarc.validators import CheckContext
 from massarc.validators.checks.steady_state import SteadyStateCheck
-from massarc.validators.registry import CheckContext
 
 OUT = Path(__file__).resolve().parent / "out" / "steady_state.json"
 CHECK = SteadyStateCheck()
@@ -71,7 +71,8 @@ def _synthetic(rng: np.random.Generator, reps: int, n: int, phi: float, drift: f
         np.ones((reps, n), bool), None, 0, None, 0, None, 0,
     )  # fmt: skip
     run = SimpleNamespace(times=np.arange(n, dtype=float))
-    ctx = CheckContext(run, CUSTOM, {"snapshots": stats}, {})  # type: ignore[arg-type]
+    options = CHECK.option_values()
+    ctx = CheckContext(run, CUSTOM, {"snapshots": stats}, options)  # type: ignore[arg-type]
     return CHECK.run(ctx).status
 
 
@@ -80,8 +81,8 @@ def _sampled(meta: RunMeta, times: np.ndarray, seed: int, initial: str, exact: b
         meta, times, replicas=4, seed=seed, mass=64, initial=initial, exact=exact,
         location=f"memory://calibrate-{uuid.uuid4().hex}",
     )  # fmt: skip
-    stats = scan(run, [SnapshotStatistic(run)]).results
-    return CHECK.run(CheckContext(run, run.meta, stats, {})).status
+    stats = scan(run, {"snapshots": SnapshotStatistic(run)}).results
+    return CHECK.run(CheckContext(run, run.meta, stats, CHECK.option_values())).status
 
 
 def _upper(k: int, n: int) -> float:

@@ -17,10 +17,10 @@ import pytest
 
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
-from massarc.archive.stats import IncrementStatistic
 from massarc.schema import RunMeta, parse_metadata
+from massarc.validators import CheckContext
 from massarc.validators.checks.boundary import BoundaryCheck
-from massarc.validators.registry import CheckContext
+from massarc.validators.checks.boundary.increments import IncrementStatistic
 
 simulate = pytest.importorskip("massarc.simulate").simulate
 
@@ -59,8 +59,9 @@ def redeclare(run: Run, boundary: list[str]) -> Run:
 
 
 def check(run: Run, **options):
-    stats = scan(run, [IncrementStatistic(run)]).results
-    return BoundaryCheck().run(CheckContext(run, run.meta, stats, options))
+    stats = scan(run, {"increments": IncrementStatistic(run)}).results
+    ctx = CheckContext(run, run.meta, stats, BoundaryCheck.option_values(options))
+    return BoundaryCheck().run(ctx)
 
 
 # -- the check -------------------------------------------------------------------------------

@@ -16,9 +16,9 @@ import zarr
 
 from massarc.archive import create_run, open_run
 from massarc.schema import parse_metadata
-from massarc.validators.boundary_events import audit_events
+from massarc.validators import CheckContext
 from massarc.validators.checks.boundary import BoundaryCheck
-from massarc.validators.registry import CheckContext
+from massarc.validators.checks.boundary.events import audit_events
 
 
 def _meta(sites: list[int], boundary: list[str]):
@@ -74,7 +74,7 @@ def _log(source: np.ndarray, target: np.ndarray) -> dict[str, np.ndarray]:
 
 def _check(path: Path):
     run = open_run(path)
-    return BoundaryCheck().run(CheckContext(run, run.meta, {}, {}))
+    return BoundaryCheck().run(CheckContext(run, run.meta, {}, BoundaryCheck.option_values()))
 
 
 def test_a_clean_log_on_a_ring_passes_and_the_same_log_fails_between_walls(tmp_path):

@@ -20,9 +20,8 @@ import pytest
 
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
-from massarc.archive.stats import IncrementStatistic
-from massarc.archive.stats.increments import plan_axis
 from massarc.schema import parse_metadata
+from massarc.validators.checks.boundary.increments import IncrementStatistic, plan_axis
 
 simulate = pytest.importorskip("massarc.simulate").simulate
 
@@ -64,7 +63,9 @@ def test_moments_match_a_direct_computation_and_both_paths_agree(sites, monkeypa
     results = []
     for pure in ("0", "1"):
         monkeypatch.setenv("MASSARC_PURE", pure)
-        results.append(scan(run, [IncrementStatistic(run, blocks=1)]).results["increments"])
+        results.append(
+            scan(run, {"increments": IncrementStatistic(run, blocks=1)}).results["increments"]
+        )
     for axis, (fast, slow) in enumerate(zip(*(r.axes for r in results), strict=True)):
         assert np.array_equal(fast.sums, slow.sums)
         plan = fast.plan
@@ -83,7 +84,7 @@ def test_one_replica_gives_numpy_corrcoef():
     rng = np.random.default_rng(2)
     data = rng.integers(0, 4, size=(1, 60, 16)).astype(np.uint8)
     run = _data_run(data, chunk=9)
-    ax = scan(run, [IncrementStatistic(run, blocks=1)]).results["increments"].axes[0]
+    ax = scan(run, {"increments": IncrementStatistic(run, blocks=1)}).results["increments"].axes[0]
     along = _signs_along(data, 0, ax.plan.lines)[0]
     for p in range(len(ax.plan.kind)):
         ref = np.corrcoef(along[:, ax.plan.first[p]], along[:, ax.plan.second[p]])[0, 1]
@@ -105,7 +106,7 @@ def test_bond_correlation_tends_to_minus_one_over_twice_the_dimension(sites, exp
     run = simulate(
         meta(sites), np.arange(2000) * 0.005, replicas=2, seed=5, mass=mass, location=memory()
     )
-    inc = scan(run, [IncrementStatistic(run)]).results["increments"]
+    inc = scan(run, {"increments": IncrementStatistic(run)}).results["increments"]
     for ax in inc.axes:
         bonds = ax.correlations()[ax.plan.kind == 1]
         assert np.mean(bonds) == pytest.approx(expected, abs=0.04)

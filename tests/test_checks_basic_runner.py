@@ -10,16 +10,18 @@ import pytest
 from _audit_runs import write_run
 
 from massarc.archive import ArchiveError
+from massarc.archive import registry as registry_helper
 from massarc.archive import scan as scan_module
 from massarc.validators import (
     Check,
     CheckContext,
     ConfigError,
+    Option,
     audit,
     available_checks,
-    registry,
-    runner,
+    register_check,
 )
+from massarc.validators.engine import registry, runner
 
 
 class _Raises(Check):
@@ -35,7 +37,10 @@ class _Options(Check):
     id = "test-options"
     description = "echoes its options and the statistics it got"
     needs: ClassVar = {"histogram": {"bins": 8}, "snapshots": {}}
-    options: ClassVar = {"level": 1.5, "label": "x"}
+    options: ClassVar = {
+        "level": Option(1.5, float, "a level to echo"),
+        "label": Option("x", str, "a label to echo"),
+    }
 
     def run(self, ctx: CheckContext):
         hist = ctx.stats["histogram"]
@@ -45,8 +50,10 @@ class _Options(Check):
 
 @pytest.fixture
 def extra_checks(monkeypatch):
-    monkeypatch.setitem(registry._BUILTIN, _Raises.id, _Raises)
-    monkeypatch.setitem(registry._BUILTIN, _Options.id, _Options)
+    """The built-in checks and two test plugins, in a registry of this test only."""
+    monkeypatch.setattr(registry, "CHECKS", registry.CHECKS.fresh())
+    register_check(_Raises)
+    register_check(_Options)
 
 
 def test_raising_check_is_an_error_and_others_run(tmp_path, extra_checks) -> None:
@@ -64,9 +71,9 @@ def test_one_scan_feeds_every_check(tmp_path, extra_checks, monkeypatch) -> None
     real = scan_module.scan
 
     def spy(run, statistics, **kw):
-        stats = list(statistics)
+        stats = statistics.values()
         calls.append(sorted((s.name, tuple(sorted(s.options.items()))) for s in stats))
-        return real(run, stats, **kw)
+        return real(run, statistics, **kw)
 
     monkeypatch.setattr(runner, "scan", spy)
     path = write_run(tmp_path / "r.zarr")
@@ -144,9 +151,9 @@ def test_entry_point_plugin_is_loaded_and_run(tmp_path, monkeypatch) -> None:
     ep = EntryPoint("shout", "massarc_test_plugin:Shout", registry.ENTRY_POINT_GROUP)
     broken = EntryPoint("broken", "massarc_test_plugin:Missing", registry.ENTRY_POINT_GROUP)
     monkeypatch.setattr(
-        registry, "entry_points", lambda group: [ep, broken] if group == ep.group else []
+        registry_helper, "entry_points", lambda group: [ep, broken] if group == ep.group else []
     )
-    monkeypatch.setattr(registry, "_PLUGINS", None)
+    monkeypatch.setattr(registry, "CHECKS", registry.CHECKS.fresh())
     with pytest.warns(UserWarning, match="skipping check plugin 'broken'"):
         assert "test-entry-point" in available_checks()
     report = audit([write_run(tmp_path / "r.zarr")], checks=["test-entry-point"])

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from massarc.validators.config import (
+from massarc.validators.engine.settings import (
     ConfigError,
     find_config,
     load_settings,
@@ -116,6 +116,10 @@ def test_pyproject_errors_use_the_tool_key_path(tmp_path) -> None:
         (["a.b.c=1"], r"expected ID\.OPTION=VALUE"),
         (["nope.x=1"], r"--set: expected a check id"),
         (["conservation.x=1"], r"--set conservation: expected one of tolerance; got 'x'"),
+        # values against the options' declared types
+        (["steady-state.min_snapshots=8.5"], r"steady-state\.min_snapshots: expected an integer"),
+        (["boundary.alpha=true"], r"boundary\.alpha: expected a number; got True"),
+        (["conservation.tolerance=lots"], r"conservation\.tolerance: expected a number"),
     ],
 )
 def test_bad_set_options(tmp_path, sets, pattern) -> None:
@@ -126,3 +130,9 @@ def test_bad_set_options(tmp_path, sets, pattern) -> None:
 def test_missing_explicit_config(tmp_path) -> None:
     with pytest.raises(ConfigError, match=r"no such configuration file"):
         resolve_settings(config=tmp_path / "absent.toml", cwd=tmp_path)
+
+
+def test_an_int_is_a_number_and_is_kept_as_given(tmp_path) -> None:
+    s = resolve_settings(cwd=tmp_path, sets=["steady-state.drift_z=4", "boundary.alpha=0.01"])
+    assert s.options == {"steady-state": {"drift_z": 4}, "boundary": {"alpha": 0.01}}
+    assert isinstance(s.options["steady-state"]["drift_z"], int)

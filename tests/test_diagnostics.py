@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 from scipy.signal import lfilter
 
-from massarc.validators.diagnostics import (
+from massarc.validators.analysis.diagnostics import (
     autocorrelation,
     detect_equilibration,
     ess_bulk,

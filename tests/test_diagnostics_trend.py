@@ -7,7 +7,7 @@ import pytest
 from scipy import stats
 from scipy.signal import lfilter
 
-from massarc.validators.diagnostics import trend_test
+from massarc.validators.analysis.diagnostics import trend_test
 
 
 def ar1(rng: np.random.Generator, shape: tuple[int, ...], phi: float) -> np.ndarray:

@@ -11,6 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from massarc.archive import registry as registry_helper
 from massarc.archive.formats import (
     Format,
     UnknownFormatError,
@@ -51,11 +52,14 @@ def plugins(monkeypatch):
     """Install fake entry points for the duration of a test."""
 
     def install(*eps):
-        monkeypatch.setattr(registry, "_PLUGINS", None)
-        monkeypatch.setattr(registry, "entry_points", lambda group: list(eps))
+        monkeypatch.setattr(registry, "FORMATS", registry.FORMATS.fresh())
+        monkeypatch.setattr(
+            registry_helper,
+            "entry_points",
+            lambda group: list(eps) if group == registry.ENTRY_POINT_GROUP else [],
+        )
 
-    yield install
-    registry._PLUGINS = None
+    return install
 
 
 def test_plugins_load_lazily_broken_ones_warn_and_duplicates_lose(plugins):

@@ -87,8 +87,17 @@ def test_table_is_plain_off_a_terminal(two_runs) -> None:
     text = render(two_runs, "table")
     assert "\x1b[" not in text  # no colour codes in a file
     lines = text.splitlines()
-    assert any("conservation" in ln and "FAIL" in ln and "replica 2" in ln for ln in lines)
-    assert "2 runs audited" in lines[-1] and "1 failed" in lines[-1]
+    assert any("conservation" in ln and " fail " in ln and "replica 2" in ln for ln in lines)
+    assert "2 runs audited" in lines[-1] and "runs: 1 warn, 1 fail" in lines[-1]
     buf = io.StringIO()
     render_table(two_runs, buf, quiet=True)
-    assert " ok " not in buf.getvalue() and "FAIL" in buf.getvalue()
+    rows = buf.getvalue().splitlines()[:-1]  # the table without the summary line
+    assert not any(" pass " in ln for ln in rows) and any(" fail " in ln for ln in rows)
+
+
+def test_table_uses_the_status_words_of_json_and_junit(two_runs) -> None:
+    text = render(two_runs, "table")
+    shown = {c.status for r in two_runs.runs for c in r.checks}
+    words = {w for ln in text.splitlines() for w in ln.split()}
+    assert shown <= words  # each status appears as itself
+    assert not {"ok", "FAIL", "ERROR", "passed", "failed"} & words

@@ -59,7 +59,7 @@ def _truth(run) -> dict[tuple[int, int], float]:
 def test_pairs_across_edges_with_out_of_order_completion(tmp_path, workers) -> None:
     run = open_run(write_run(tmp_path / "r.zarr", replicas=2, snapshots=57, chunk=7))
     stat = _Pairs(run, delay=0.002)
-    res = scan(run, [stat], workers=workers, in_flight=4)
+    res = scan(run, {"test-pairs": stat}, workers=workers, in_flight=4)
     assert res.faults == [] and res.errors == {}
     assert res.results["test-pairs"] == _truth(run)
     assert res.chunks_read == len(run.chunk_refs()) == 2 * 9
@@ -69,7 +69,10 @@ def test_parallel_equals_sequential_and_zarr_path(tmp_path) -> None:
     run = open_run(write_run(tmp_path / "r.zarr", replicas=3, snapshots=64, sites=(6, 5)))
     outs = []
     for workers, direct in ((1, False), (4, True), (2, False)):
-        stats = [SnapshotStatistic(run), HistogramStatistic(run, bins=8, blocks=5)]
+        stats = {
+            "snapshots": SnapshotStatistic(run),
+            "histogram": HistogramStatistic(run, bins=8, blocks=5),
+        }
         outs.append(scan(run, stats, workers=workers, direct=direct).results)
     for other in outs[1:]:
         for f in ("total", "maximum", "sum_sq", "occupied", "argmax", "valid"):
@@ -120,7 +123,7 @@ def test_faults_are_named_and_isolated(tmp_path, direct, how, kind) -> None:
     run = open_run(path)
     snap = SnapshotStatistic(run)
     pairs = _Pairs(run)
-    res = scan(run, [snap, pairs], workers=2, direct=direct)
+    res = scan(run, {"snapshots": snap, "test-pairs": pairs}, workers=2, direct=direct)
     assert [(f.kind, f.ref.key, f.ref.replica, f.ref.start) for f in res.faults] == [
         (kind, "mass/c/1/2/0", 1, 20)
     ]
@@ -149,10 +152,23 @@ class _Boom(Statistic):
 
 def test_statistic_that_raises_is_dropped_alone(tmp_path) -> None:
     run = open_run(write_run(tmp_path / "r.zarr", snapshots=40))
-    res = scan(run, [_Boom(run), SnapshotStatistic(run)], workers=2)
-    assert res.errors == {0: "RuntimeError: kaboom"}
-    assert res.ordered[0] is None and "test-boom" not in res.results
-    assert res.results["snapshots"].valid.all()
+    res = scan(run, {"boom": _Boom(run), "snap": SnapshotStatistic(run)}, workers=2)
+    assert res.errors == {"boom": "RuntimeError: kaboom"}
+    assert set(res.results) == {"snap"}  # results and errors by the caller's keys
+    assert res.results["snap"].valid.all()
+
+
+def test_results_come_back_by_key_for_one_class_twice(tmp_path) -> None:
+    run = open_run(write_run(tmp_path / "r.zarr", replicas=2, snapshots=30, chunk=10))
+    res = scan(
+        run,
+        {("histogram", 4): HistogramStatistic(run, bins=4), 16: HistogramStatistic(run, bins=16)},
+        workers=2,
+    )
+    assert res.results[("histogram", 4)].counts.shape[2] == 4
+    assert res.results[16].counts.shape[2] == 16
+    # each counts every (replica, snapshot, site) once: 2 x 30 x 16 (by definition)
+    assert res.results[16].counts.sum() == res.results[("histogram", 4)].counts.sum() == 960
 
 
 class _Concurrency(Statistic):
@@ -184,7 +200,7 @@ def test_chunks_in_flight_are_bounded_and_progress_is_reported(tmp_path) -> None
     calls = []
     res = scan(
         run,
-        [_Concurrency(run)],
+        {"test-concurrency": _Concurrency(run)},
         workers=3,
         in_flight=3,
         progress=lambda d, t, _u: calls.append((d, t)),
@@ -206,6 +222,7 @@ def test_snapshots_and_histogram_share_one_loop_per_chunk(tmp_path, monkeypatch)
 
     monkeypatch.setattr(_kernels, "reduce_rows", counting)
     run = open_run(write_run(tmp_path / "r.zarr", replicas=2, snapshots=30, chunk=10))
-    res = scan(run, [SnapshotStatistic(run), HistogramStatistic(run, bins=16)], workers=2)
+    stats = {"snapshots": SnapshotStatistic(run), "histogram": HistogramStatistic(run, bins=16)}
+    res = scan(run, stats, workers=2)
     assert len(calls) == len(run.chunk_refs()) == 6
     assert res.results["histogram"].counts.sum() == 2 * 30 * 16

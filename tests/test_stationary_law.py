@@ -1,4 +1,4 @@
-"""The ``stationary-law`` check and its goodness-of-fit test (validators/law_fit.py).
+"""The ``stationary-law`` check and its goodness-of-fit test (stationary_law/law_fit.py).
 
 Outside truth:
 
@@ -27,9 +27,9 @@ from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
 from massarc.archive.stats import HistogramStatistic, SnapshotStatistic
 from massarc.schema import RunMeta, parse_metadata
+from massarc.validators import CheckContext
 from massarc.validators.checks.stationary_law import StationaryLawCheck
-from massarc.validators.law_fit import fit_law
-from massarc.validators.registry import CheckContext
+from massarc.validators.checks.stationary_law.law_fit import fit_law
 
 simulate = pytest.importorskip("massarc.simulate").simulate
 
@@ -66,8 +66,11 @@ def redeclared(run: Run, **model) -> Run:
 
 
 def check(run: Run, **options):
-    stats = scan(run, [HistogramStatistic(run), SnapshotStatistic(run)]).results
-    return StationaryLawCheck().run(CheckContext(run, run.meta, stats, options))
+    stats = {"histogram": HistogramStatistic(run), "snapshots": SnapshotStatistic(run)}
+    ctx = CheckContext(
+        run, run.meta, scan(run, stats).results, StationaryLawCheck.option_values(options)
+    )
+    return StationaryLawCheck().run(ctx)
 
 
 # -- the goodness-of-fit test ---------------------------------------------------------------

@@ -19,9 +19,9 @@ from scipy.signal import lfilter
 
 from massarc.archive.stats import SnapshotStats
 from massarc.schema import InitialCondition, RunMeta
+from massarc.validators import CheckContext, get_check
+from massarc.validators.analysis.window import WindowSettings, stationary_window
 from massarc.validators.checks.steady_state import SteadyStateCheck
-from massarc.validators.registry import CheckContext, get_check
-from massarc.validators.window import WindowSettings, stationary_window
 
 CUSTOM = make_meta("custom")
 ZRP = make_meta("zrp", sites=(64,), b=4.0)  # symmetric: relaxation time 64^3
@@ -73,7 +73,8 @@ def stats_of(x: np.ndarray, valid: np.ndarray | None = None) -> SnapshotStats:
 def context(x, meta=CUSTOM, times=None, options=None, valid=None) -> CheckContext:
     n = x.shape[-1]
     run = SimpleNamespace(times=np.arange(n, dtype=float) if times is None else times)
-    return CheckContext(run, meta, {"snapshots": stats_of(x, valid)}, options or {})  # type: ignore[arg-type]
+    opts = SteadyStateCheck.option_values(options)
+    return CheckContext(run, meta, {"snapshots": stats_of(x, valid)}, opts)  # type: ignore[arg-type]
 
 
 def judge(x, **kw):

@@ -20,9 +20,9 @@ import pytest
 from massarc.archive.scan import scan
 from massarc.archive.stats import SnapshotStatistic
 from massarc.schema import RunMeta, parse_metadata
+from massarc.validators import CheckContext
+from massarc.validators.analysis.window import stationary_window
 from massarc.validators.checks.steady_state import SteadyStateCheck
-from massarc.validators.registry import CheckContext
-from massarc.validators.window import stationary_window
 
 simulate = pytest.importorskip("massarc.simulate").simulate
 
@@ -51,8 +51,8 @@ def audit_one(m: RunMeta, times, seed: int, initial: str, exact: bool = False):
         exact=exact,
         location=f"memory://steady-{uuid.uuid4().hex}",
     )
-    stats = scan(run, [SnapshotStatistic(run)]).results
-    ctx = CheckContext(run, run.meta, stats, {})
+    stats = scan(run, {"snapshots": SnapshotStatistic(run)}).results
+    ctx = CheckContext(run, run.meta, stats, SteadyStateCheck.option_values())
     return SteadyStateCheck().run(ctx), ctx
 
 

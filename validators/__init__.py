@@ -3,21 +3,32 @@
 * :func:`audit` runs the registered checks on runs and collections, from one pass over
   each run's chunks, and returns an :class:`AuditReport` (render it with
   :func:`~massarc.validators.report.render`: table, JSON or JUnit XML);
-* :class:`Check`, :class:`CheckContext`, :class:`CheckResult` and :func:`register_check`
-  are the plugin interface (third-party checks also come from the entry-point group
-  ``massarc.checks``); :func:`available_checks` lists them by id.
+* :class:`Check`, :class:`CheckContext`, :class:`CheckResult`, :class:`Option` and
+  :func:`register_check` are the plugin interface (third-party checks also come from the
+  entry-point group ``massarc.checks``); :func:`available_checks` lists them by id.
+
+Layout: :mod:`.engine` is the framework (registry, runner, settings, result),
+:mod:`.report` the renderings, :mod:`.checks` the built-in checks (one module, or one
+package when a check brings its own statistic or test), :mod:`.analysis` the analyses
+several checks share.
 
 Built-in check ids: ``schema``, ``integrity``, ``time-order``, ``nonnegative``,
 ``conservation``, and the statistical checks ``steady-state``, ``boundary`` and
 ``stationary-law``.
 """
 
-from . import checks as _builtin_checks  # noqa: F401 - registers the built-in checks
-from .config import AuditSettings, ConfigError, resolve_settings
-from .registry import Check, CheckContext, available_checks, get_check, register_check
+from .engine.registry import (
+    Check,
+    CheckContext,
+    Option,
+    available_checks,
+    get_check,
+    register_check,
+)
+from .engine.result import CheckResult, Where
+from .engine.runner import audit, open_for_audit
+from .engine.settings import AuditSettings, ConfigError, resolve_settings
 from .report import AuditReport, RunReport, render
-from .result import CheckResult, Where
-from .runner import audit, open_for_audit
 
 __all__ = [
     "AuditReport",
@@ -26,6 +37,7 @@ __all__ = [
     "CheckContext",
     "CheckResult",
     "ConfigError",
+    "Option",
     "RunReport",
     "Where",
     "audit",

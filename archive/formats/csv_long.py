@@ -34,7 +34,7 @@ from ._csv import CsvSource, csv_columns, guard_replica_index, guard_row_width, 
 from ._export import export_lines, meta_comment
 from ._lines import Rows
 from ._options import guard_options
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["CsvLongFormat"]
 
@@ -210,7 +210,6 @@ def _row_lines(lattice: tuple[int, ...], replica: int, times: np.ndarray, mass: 
     return "".join(out)
 
 
-@register_format
 class CsvLongFormat(Format):
     name = "csv-long"
     suffixes = (".csv", ".long.csv")

@@ -27,7 +27,7 @@ from ..reader import Run
 from ._csv import CsvSource, csv_columns, guard_row_width, replica_runs
 from ._export import export_lines, meta_comment
 from ._options import guard_options
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["CsvWideFormat"]
 
@@ -85,7 +85,6 @@ def _row_lines(replica: int, times: np.ndarray, mass: np.ndarray) -> str:
     )
 
 
-@register_format
 class CsvWideFormat(Format):
     name = "csv-wide"
     suffixes = (".wide.csv",)

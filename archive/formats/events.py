@@ -39,7 +39,7 @@ from massarc.schema import RunMeta
 from ..errors import ArchiveError, DataError
 from ._lines import LineParser, LineReader, Rows, magic_of, read_preamble
 from ._options import as_bool, as_float, guard_options, parse_times
-from .registry import Batch, Events, Format, Source, register_format
+from .registry import Batch, Events, Format, Source
 
 __all__ = ["EventsFormat"]
 
@@ -282,7 +282,6 @@ class EventsSource(Source):
         return t, rep, src, tgt, amt
 
 
-@register_format
 class EventsFormat(Format):
     name = "events"
     suffixes = (".events", ".events.txt")

@@ -30,7 +30,7 @@ from ._axes import axes_for, lattice_axes, parse_axes, times_for
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
 from ._options import guard_options
 from ._signatures import HDF5_MAGIC
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["HDF5Format"]
 
@@ -120,7 +120,6 @@ class HDF5Source(Source):
         self.file.close()
 
 
-@register_format
 class HDF5Format(Format):
     name = "hdf5"
     suffixes = (".h5", ".hdf5", ".hdf")

@@ -32,7 +32,7 @@ from ._axes import lattice_axes, times_for
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
 from ._options import guard_options
 from ._signatures import HDF5_MAGIC, NETCDF_CLASSIC_MAGIC
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["NetCDFFormat"]
 
@@ -160,7 +160,6 @@ class NetCDFSource(Source):
         self.ds.close()
 
 
-@register_format
 class NetCDFFormat(Format):
     name = "netcdf"
     suffixes = (".nc", ".nc4", ".netcdf")

@@ -30,7 +30,7 @@ from ._axes import axes_for, times_for
 from ._npy_stream import read_npy_header, write_npy_stream
 from ._options import guard_options
 from ._signatures import NPY_MAGIC
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["NpyFormat"]
 
@@ -79,7 +79,6 @@ class NpySource(Source):
             mm.close()
 
 
-@register_format
 class NpyFormat(Format):
     name = "npy"
     suffixes = (".npy",)

@@ -34,7 +34,7 @@ from ._metadata import meta_json, metadata_from_json
 from ._npy_stream import read_npy_header, write_npy_stream
 from ._options import as_bool, guard_options
 from ._signatures import ZIP_MAGIC
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["NpzFormat"]
 
@@ -143,7 +143,6 @@ class NpzSource(Source):
         self.zf.close()
 
 
-@register_format
 class NpzFormat(Format):
     name = "npz"
     suffixes = (".npz",)

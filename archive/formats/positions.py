@@ -32,7 +32,7 @@ from ..reader import Run
 from ._export import export_lines, header_lines
 from ._lines import LineParser, LineReader, Rows, magic_of, read_preamble
 from ._options import guard_options
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["PositionsFormat", "occupations", "positions_lines"]
 
@@ -93,7 +93,6 @@ class PositionsSource(Source):
                     )
 
 
-@register_format
 class PositionsFormat(Format):
     name = "positions"
     suffixes = (".pos", ".positions.txt")

@@ -6,10 +6,12 @@ writing. ``sniff(head, path)`` recognises a file by its content (magic bytes, he
 lines); ``read(path, **options)`` returns a :class:`Source` that streams the snapshots;
 ``write(run, path, **options)`` exports an archive, where the format can be written.
 
-Third-party formats come through the entry-point group ``massarc.formats``; each entry
-point names a :class:`Format` subclass. They are loaded lazily, the first time the
-registry is listed; a broken plugin gives a warning and is skipped, and a plugin that
-reuses a name already taken gives a warning (the first registered wins).
+Built-in formats are listed by :func:`massarc.archive.formats.builtin.builtin_formats`;
+third-party formats come through the entry-point group ``massarc.formats`` (each entry
+point names a :class:`Format` subclass) or :func:`register_format`. They are loaded
+lazily, the first time the registry is listed; a broken plugin gives a warning and is
+skipped, and a plugin that reuses a name already taken gives a warning (the first
+registered wins): see :mod:`massarc.archive.registry`.
 
 Detection (:func:`detect_format`) goes by content first, then by suffix; an explicit
 name (``--from``/``--to``) overrides both.
@@ -17,11 +19,11 @@ name (``--from``/``--to``) overrides both.
 
 from __future__ import annotations
 
+import inspect
 import os
 from abc import ABC, abstractmethod
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
-from importlib.metadata import entry_points
 from pathlib import Path
 from typing import Any, ClassVar
 
@@ -30,12 +32,13 @@ import numpy as np
 from massarc.schema import RunMeta
 
 from ..errors import ArchiveError
-from ..plugins import load_plugins
 from ..progress import Progress
 from ..reader import Run
+from ..registry import Registry
 
 __all__ = [
     "ENTRY_POINT_GROUP",
+    "FORMATS",
     "Batch",
     "Events",
     "Format",
@@ -187,11 +190,8 @@ class Format(ABC):
         raise ArchiveError(f"format {self.name} cannot be written; it is read-only")
 
 
-_BUILTIN: dict[str, type[Format]] = {}
-_PLUGINS: dict[str, type[Format]] | None = None
-
-
 def _validate(cls: Any, origin: str) -> None:
+    """Refuse (``TypeError``) a class that breaks the format contract; ``origin`` names it."""
     if not (isinstance(cls, type) and issubclass(cls, Format)):
         raise TypeError(f"{origin}: expected a subclass of massarc.archive.formats.Format")
     for attr in ("name", "description"):
@@ -199,35 +199,33 @@ def _validate(cls: Any, origin: str) -> None:
             raise TypeError(f"{origin}: expected {cls.__name__}.{attr} to be a non-empty string")
     if not isinstance(cls.suffixes, tuple):
         raise TypeError(f"{origin}: expected {cls.__name__}.suffixes to be a tuple")
+    if inspect.isabstract(cls):
+        raise TypeError(f"{origin}: expected {cls.__name__} to define read()")
+
+
+def _builtin_formats() -> tuple[type[Format], ...]:
+    from .builtin import builtin_formats
+
+    return builtin_formats()
+
+
+#: The format registry: built-ins, then plugins of the entry-point group ``massarc.formats``.
+FORMATS: Registry[Format] = Registry(
+    "format", "name", ENTRY_POINT_GROUP, _validate, _builtin_formats
+)
 
 
 def register_format(cls: type[Format]) -> type[Format]:
-    """Register a built-in format class (usable as a decorator)."""
-    _validate(cls, origin=cls.__module__)
-    if cls.name in _BUILTIN and _BUILTIN[cls.name] is not cls:
-        raise ValueError(f"format {cls.name!r} is already registered by {_BUILTIN[cls.name]}")
-    _BUILTIN[cls.name] = cls
-    return cls
+    """Register a third-party format class (usable as a decorator); validates the contract.
+
+    Listing the class in the entry-point group ``massarc.formats`` as well is fine.
+    """
+    return FORMATS.register(cls)
 
 
-def _load_plugins() -> dict[str, type[Format]]:
-    global _PLUGINS
-    if _PLUGINS is None:
-        _PLUGINS = load_plugins(
-            entry_points(group=ENTRY_POINT_GROUP),
-            kind="format",
-            key="name",
-            validate=_validate,
-            taken=_BUILTIN,
-        )
-    return _PLUGINS
-
-
-def available_formats() -> dict[str, type[Format]]:
-    """Built-in then plugin formats, by name, in registration order."""
-    from . import builtin  # noqa: F401  (registers the built-in formats)
-
-    return {**_BUILTIN, **_load_plugins()}
+def available_formats() -> Mapping[str, type[Format]]:
+    """Built-in then plugin formats by name (read-only; the same mapping on every call)."""
+    return FORMATS.available()
 
 
 def _known() -> str:
@@ -236,10 +234,11 @@ def _known() -> str:
 
 def get_format(name: str) -> Format:
     """An instance of the format registered as ``name``; the error lists the known ones."""
-    formats = available_formats()
-    if name not in formats:
-        raise UnknownFormatError(f"unknown format {name!r}; expected one of {_known()}")
-    return formats[name]()
+    try:
+        cls = FORMATS.get(name)
+    except KeyError as exc:
+        raise UnknownFormatError(exc.args[0]) from None
+    return cls()
 
 
 def _head(path: Path) -> bytes:

@@ -38,7 +38,7 @@ from ._export import export_lines, header_lines
 from ._lines import LineParser, LineReader, magic_of, read_preamble
 from ._options import guard_options
 from ._text_rows import TEXT_MAGIC, rows_to_batch
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["TextFormat"]
 
@@ -94,7 +94,6 @@ def _looks_numeric(head: bytes, comma: bool = False) -> bool:
     return False
 
 
-@register_format
 class TextFormat(Format):
     name = "text"
     suffixes = (".txt", ".dat", ".text")

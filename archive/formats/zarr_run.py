@@ -22,7 +22,7 @@ from ..reader import Run, open_run
 from ._metadata import meta_dict
 from ._options import ARCHIVE_WRITE_OPTIONS, archive_options, guard_options
 from ._signatures import ZIP_MAGIC
-from .registry import Batch, Events, Format, Progress, Source, register_format
+from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["RunSource", "ZarrFormat"]
 
@@ -88,7 +88,6 @@ def _is_run_dir(path: Path) -> bool:
     return isinstance(attrs, dict) and ATTRIBUTE_KEY in attrs
 
 
-@register_format
 class ZarrFormat(Format):
     name = "zarr"
     suffixes = (".zarr", ".zarr.zip")

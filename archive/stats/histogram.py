@@ -23,7 +23,7 @@ from typing import Any
 import numpy as np
 
 from ..reader import Chunk, ChunkRef
-from ..scan import ChunkFault, Statistic, register_statistic
+from ..scan import ChunkFault, Statistic
 from ._kernels import Plan, reduce_block
 
 __all__ = ["HistogramStatistic", "HistogramStats", "block_edges"]
@@ -60,7 +60,6 @@ def block_edges(n_snapshots: int, blocks: int) -> np.ndarray:
     return np.linspace(0, n_snapshots, b + 1).round().astype(np.int64)
 
 
-@register_statistic
 class HistogramStatistic(Statistic):
     """Options: ``bins`` (default 512, at least 2), ``blocks`` per replica (default 256)."""
 

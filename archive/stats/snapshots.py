@@ -25,7 +25,7 @@ import numpy as np
 
 from ..layout import sentinel
 from ..reader import Chunk, ChunkRef
-from ..scan import ChunkFault, Statistic, register_statistic
+from ..scan import ChunkFault, Statistic
 from ._kernels import Plan, reduce_block
 
 __all__ = ["SnapshotStatistic", "SnapshotStats"]
@@ -60,7 +60,6 @@ class SnapshotStats:
 _KINDS = ("negative", "fractional", "sentinel")
 
 
-@register_statistic
 class SnapshotStatistic(Statistic):
     """Reduce each snapshot to a handful of numbers (memory: a few arrays of (R, T))."""
 

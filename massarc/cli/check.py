@@ -47,9 +47,11 @@ def _listing() -> str:
     checks = available_checks()
     width = max((len(c) for c in checks), default=0)
     for cid, cls in checks.items():
-        opts = ", ".join(f"{k}={v!r}" for k, v in cls.options.items())
-        tail = f"  [options: {opts}]" if opts else ""
-        lines.append(f"{cid:<{width}}  {cls.description}{tail}")
+        lines.append(f"{cid:<{width}}  {cls.description}")
+        settings = {f"{cid}.{name}={opt.default!r}": opt for name, opt in cls.options.items()}
+        pad = max((len(k) for k in settings), default=0)
+        for text, opt in settings.items():
+            lines.append(f"{'':<{width}}    {text:<{pad}}  {opt.help} ({opt.expected})")
     return "\n".join(lines)
 
 

@@ -1,33 +1,36 @@
-"""The built-in checks. Importing this package registers them, in report order.
+"""The built-in checks, one module per simple check and one package per check that brings
+its own statistic or test (:mod:`.boundary`, :mod:`.stationary_law`).
 
-The checks of this package register like plugins do. The basic checks are imported
-first; the statistical ones after them, defensively: a module that is missing or fails to
-import is skipped with a warning, so that the others stay available.
+:func:`builtin_checks` is the one place they are registered from: the check registry
+calls it on its first listing, and an import error here propagates (a broken built-in
+fails loudly, it is never skipped).
 """
 
 from __future__ import annotations
 
-import importlib
-import warnings
+from ..engine.registry import Check
 
-__all__ = ["BUILTIN_MODULES"]
+__all__ = ["builtin_checks"]
 
-#: The basic checks, in report order (an import error here is a bug: it propagates).
-_BASIC = ("schema", "integrity", "time_order", "nonnegative", "conservation")
-#: The statistical checks, imported defensively.
-_OPTIONAL = ("steady_state", "boundary", "stationary_law")
 
-#: Fully qualified names of the modules that registered checks.
-BUILTIN_MODULES: list[str] = []
+def builtin_checks() -> tuple[type[Check], ...]:
+    """The built-in checks, in report order (basic checks first, statistical ones after)."""
+    from .boundary import BoundaryCheck
+    from .conservation import ConservationCheck
+    from .integrity import IntegrityCheck
+    from .nonnegative import NonNegativeCheck
+    from .schema import SchemaCheck
+    from .stationary_law import StationaryLawCheck
+    from .steady_state import SteadyStateCheck
+    from .time_order import TimeOrderCheck
 
-for _name in _BASIC:
-    BUILTIN_MODULES.append(importlib.import_module(f"{__name__}.{_name}").__name__)
-
-for _name in _OPTIONAL:
-    try:
-        BUILTIN_MODULES.append(importlib.import_module(f"{__name__}.{_name}").__name__)
-    except ModuleNotFoundError as _exc:
-        if _exc.name != f"{__name__}.{_name}":  # the module exists but lacks a dependency
-            warnings.warn(f"massarc: check module {_name!r} not loaded: {_exc}", stacklevel=2)
-    except Exception as _exc:  # a broken built-in must not take the others down
-        warnings.warn(f"massarc: check module {_name!r} not loaded: {_exc}", stacklevel=2)
+    return (
+        SchemaCheck,
+        IntegrityCheck,
+        TimeOrderCheck,
+        NonNegativeCheck,
+        ConservationCheck,
+        SteadyStateCheck,
+        BoundaryCheck,
+        StationaryLawCheck,
+    )

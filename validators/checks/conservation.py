@@ -16,8 +16,8 @@ import numpy as np
 
 from massarc.schema.spec import INFLOW, OUTFLOW
 
-from ..registry import Check, CheckContext, register_check
-from ..result import CheckResult
+from ..engine.registry import Check, CheckContext, Option
+from ..engine.result import CheckResult
 from ._common import fault_note, first_index
 
 __all__ = ["ConservationCheck"]
@@ -29,17 +29,18 @@ def _first_valid(total: np.ndarray, valid: np.ndarray) -> np.ndarray:
     return total[np.arange(len(total)), idx]
 
 
-@register_check
 class ConservationCheck(Check):
     id = "conservation"
     description = "total mass is conserved (closed) or matches inflow - outflow (open axes)"
     needs: ClassVar = {"snapshots": {}}
-    options: ClassVar = {"tolerance": 0}
+    options: ClassVar = {
+        "tolerance": Option(0, float, "largest |total mass - expected| accepted, in mass units")
+    }
     requires: ClassVar = ("metadata", "data")
 
     def run(self, ctx: CheckContext) -> CheckResult:
         assert ctx.meta is not None
-        tol = ctx.options.get("tolerance", self.options["tolerance"])
+        tol = ctx.options["tolerance"]
         if not isinstance(tol, int | float) or tol < 0:
             raise ValueError(f"conservation.tolerance: expected a number >= 0; got {tol!r}")
         snap = ctx.stats["snapshots"]

@@ -14,8 +14,8 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from ..registry import Check, CheckContext, register_check
-from ..result import CheckResult
+from ..engine.registry import Check, CheckContext
+from ..engine.result import CheckResult
 from ._common import site_of
 
 __all__ = ["IntegrityCheck"]
@@ -24,7 +24,6 @@ __all__ = ["IntegrityCheck"]
 _LISTED = 50
 
 
-@register_check
 class IntegrityCheck(Check):
     id = "integrity"
     description = "every chunk is present, decodes and passes its checksum; no never-written values"

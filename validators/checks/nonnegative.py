@@ -9,14 +9,13 @@ from __future__ import annotations
 
 from typing import ClassVar
 
-from ..registry import Check, CheckContext, register_check
-from ..result import CheckResult
+from ..engine.registry import Check, CheckContext
+from ..engine.result import CheckResult
 from ._common import fault_note, mass_at, site_of
 
 __all__ = ["NonNegativeCheck"]
 
 
-@register_check
 class NonNegativeCheck(Check):
     id = "nonnegative"
     description = "every mass is a non-negative integer"

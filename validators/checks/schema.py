@@ -18,8 +18,8 @@ import zarr
 from massarc.schema import mass_dimensions
 from massarc.schema.spec import MASS, TIME
 
-from ..registry import Check, CheckContext, register_check
-from ..result import CheckResult
+from ..engine.registry import Check, CheckContext
+from ..engine.result import CheckResult
 
 __all__ = ["SchemaCheck"]
 
@@ -86,7 +86,6 @@ def _total_problems(ctx: CheckContext) -> list[tuple[str, dict[str, Any]]]:
     return [(text, {"replica": r, "snapshot": 0})]
 
 
-@register_check
 class SchemaCheck(Check):
     id = "schema"
     description = "metadata valid and consistent with the arrays; archive complete"

@@ -1,7 +1,8 @@
 """The ``steady-state`` check: is a run labelled stationary stationary, and from when?
 
 Observables: per snapshot the largest mass, the sum of m^2 and the number of occupied
-sites, over all replicas. The analysis is :func:`massarc.validators.window.stationary_window`
+sites, over all replicas. The analysis is
+:func:`massarc.validators.analysis.window.stationary_window`
 (its docstring gives every definition); this module turns it into a verdict.
 
 Null hypothesis (``run.regime = "stationary"``): from the detected start on, every
@@ -43,14 +44,13 @@ relaxation) or cannot say, warn when the run looks stationary and certified.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from typing import Any, ClassVar
 
 from massarc.schema import ZRPModel
 from massarc.schema.laws import critical_density
 
-from ..registry import Check, CheckContext, register_check
-from ..result import CheckResult
-from ..window import (
+from ..analysis.window import (
     EXACT_STARTS,
     FAR_STARTS,
     OBSERVABLES,
@@ -58,13 +58,14 @@ from ..window import (
     WindowSettings,
     stationary_window,
 )
+from ..engine.registry import Check, CheckContext, Option
+from ..engine.result import CheckResult
 
 __all__ = ["SteadyStateCheck"]
 
 _DEFAULTS = WindowSettings()
 
 
-@register_check
 class SteadyStateCheck(Check):
     """Stationarity of a run: detected start, drift, R-hat, ESS, run length versus L^z."""
 
@@ -72,19 +73,39 @@ class SteadyStateCheck(Check):
     description = "the run is stationary as labelled (drift, R-hat, ESS, relaxation time)"
     needs: ClassVar = {"snapshots": {}}
     options: ClassVar = {
-        "rhat_max": _DEFAULTS.rhat_max,
-        "min_ess_per_chain": _DEFAULTS.min_ess_per_chain,
-        "drift_z": _DEFAULTS.drift_z,
-        "transient_z": 3.0,
-        "relaxing_ratio": _DEFAULTS.relaxing_ratio,
-        "relaxing_rhat": _DEFAULTS.relaxing_rhat,
-        "short_ratio": 0.1,
-        "max_start_fraction": _DEFAULTS.max_start_fraction,
-        "min_snapshots": _DEFAULTS.min_snapshots,
+        "rhat_max": Option(_DEFAULTS.rhat_max, float, "certify only with R-hat at most this"),
+        "min_ess_per_chain": Option(
+            _DEFAULTS.min_ess_per_chain,
+            float,
+            "certify only with bulk and tail ESS of at least this per replica",
+        ),
+        "drift_z": Option(_DEFAULTS.drift_z, float, "fail on a trend |z| of at least this"),
+        "transient_z": Option(
+            3.0, float, "a run declared transient shows one with a whole-run trend |z| this large"
+        ),
+        "relaxing_ratio": Option(
+            _DEFAULTS.relaxing_ratio,
+            float,
+            "still relaxing: shorter than this fraction of the relaxation time L^z (and unmixed)",
+        ),
+        "relaxing_rhat": Option(
+            _DEFAULTS.relaxing_rhat, float, "replicas count as unmixed above this R-hat"
+        ),
+        "short_ratio": Option(
+            0.1, float, "warn on runs shorter than this fraction of the relaxation time"
+        ),
+        "max_start_fraction": Option(
+            _DEFAULTS.max_start_fraction,
+            float,
+            "search the start of the stationary window in this first fraction of the run",
+        ),
+        "min_snapshots": Option(
+            _DEFAULTS.min_snapshots, int, "shortest stationary window, in snapshots"
+        ),
     }
 
     def run(self, ctx: CheckContext) -> CheckResult:
-        opts = {**self.options, **ctx.options}
+        opts = ctx.options
         window = stationary_window(ctx, WindowSettings.from_options(opts))
         values = _values(window)
         thresholds = {k: opts[k] for k in self.options}
@@ -139,7 +160,7 @@ def _summary(w: Window) -> str:
     )
 
 
-def _thin(w: Window, opts: dict[str, Any]) -> str:
+def _thin(w: Window, opts: Mapping[str, Any]) -> str:
     live = [o for o in w.observables.values() if not o.constant]
     min_ess = opts["min_ess_per_chain"] * w.replicas
     low = min(live, key=lambda o: min(o.ess_bulk, o.ess_tail))
@@ -164,7 +185,7 @@ def _condensed(ctx: CheckContext) -> bool:
     return rho_c is not None and rho is not None and rho > rho_c
 
 
-def _stationary(w: Window, ctx: CheckContext, opts: dict[str, Any]) -> tuple[str, str]:
+def _stationary(w: Window, ctx: CheckContext, opts: Mapping[str, Any]) -> tuple[str, str]:
     at = f"snapshot {w.start} (t = {w.time:.6g})"
     if w.drifting:
         return "fail", f"still drifting: {w.reason}, window from {at}; {_summary(w)}"
@@ -190,7 +211,7 @@ def _stationary(w: Window, ctx: CheckContext, opts: dict[str, Any]) -> tuple[str
     return status, "; ".join([f"{head}: {_summary(w)}", *notes])
 
 
-def _transient(w: Window, opts: dict[str, Any]) -> tuple[str, str]:
+def _transient(w: Window, opts: Mapping[str, Any]) -> tuple[str, str]:
     live = [o for o in w.observables.values() if not o.constant]
     moving = max(live, key=lambda o: abs(o.transient_z), default=None)
     seen = moving is not None and abs(moving.transient_z) >= opts["transient_z"]

@@ -6,13 +6,12 @@ from typing import ClassVar
 
 import numpy as np
 
-from ..registry import Check, CheckContext, register_check
-from ..result import CheckResult
+from ..engine.registry import Check, CheckContext
+from ..engine.result import CheckResult
 
 __all__ = ["TimeOrderCheck"]
 
 
-@register_check
 class TimeOrderCheck(Check):
     id = "time-order"
     description = "snapshot times are finite and strictly increasing"

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from ..result import CheckResult, Status, worst
+from ..engine.result import CheckResult, Status, worst
 
 __all__ = ["AuditReport", "RunReport"]
 

@@ -1,7 +1,8 @@
 """The human report: one compact table for all runs, then a summary line.
 
-Colour only on a terminal (rich decides from the console it is given). Status words:
-``ok``, ``warn``, ``FAIL``, ``ERROR``, ``skip``.
+Colour only on a terminal (rich decides from the console it is given). Status words are
+the statuses themselves, as in JSON and JUnit: ``pass``, ``warn``, ``fail``, ``skip``,
+``error``; emphasis comes from the style alone.
 """
 
 from __future__ import annotations
@@ -13,18 +14,18 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from ..result import Where
+from ..engine.result import Where
 from .model import AuditReport
 
 __all__ = ["STATUS_STYLE", "render_table"]
 
-#: (word, style) shown for each status.
-STATUS_STYLE: dict[str, tuple[str, str]] = {
-    "pass": ("ok", "green"),
-    "warn": ("warn", "yellow"),
-    "fail": ("FAIL", "bold red"),
-    "error": ("ERROR", "bold magenta"),
-    "skip": ("skip", "dim"),
+#: The style each status is shown in (the word is the status itself).
+STATUS_STYLE: dict[str, str] = {
+    "pass": "green",
+    "warn": "yellow",
+    "fail": "bold red",
+    "error": "bold magenta",
+    "skip": "dim",
 }
 
 
@@ -40,26 +41,16 @@ def _where(where: Where | None) -> str:
 
 def _summary(report: AuditReport) -> str:
     runs = report.runs
-    words = {
-        "error": "with errors",
-        "fail": "failed",
-        "warn": "with warnings",
-        "pass": "passed",
-        "skip": "skipped",
-    }
-    parts = []
-    for status, word in words.items():
-        n = sum(r.status == status for r in runs)
-        if n:
-            parts.append(f"{n} {word}")
-    checks = [c.status for r in runs for c in r.checks]
-    tally = ", ".join(
-        f"{checks.count(s)} {STATUS_STYLE[s][0]}" for s in STATUS_STYLE if s in checks
-    )
+
+    def tally(statuses: list[str]) -> str:
+        return ", ".join(f"{statuses.count(s)} {s}" for s in STATUS_STYLE if s in statuses)
+
+    by_run = tally([r.status for r in runs])
+    by_check = tally([c.status for r in runs for c in r.checks])
     strict = " (strict: warnings fail)" if report.strict else ""
     noun = "run" if len(runs) == 1 else "runs"
     head = f"{len(runs)} {noun} audited in {report.seconds:.1f} s"
-    return f"{head}: {', '.join(parts) or 'nothing run'}; checks: {tally or 'none'}{strict}"
+    return f"{head}; runs: {by_run or 'none'}; checks: {by_check or 'none'}{strict}"
 
 
 def render_table(report: AuditReport, file: IO[str], *, quiet: bool = False) -> None:
@@ -75,10 +66,8 @@ def render_table(report: AuditReport, file: IO[str], *, quiet: bool = False) -> 
         for c in run.checks:
             if quiet and c.status == "pass":
                 continue
-            word, style = STATUS_STYLE[c.status]
-            table.add_row(
-                run.path if first else "", c.id, Text(word, style=style), c.message, _where(c.where)
-            )
+            status = Text(c.status, style=STATUS_STYLE[c.status])
+            table.add_row(run.path if first else "", c.id, status, c.message, _where(c.where))
             first = False
             rows += 1
     if rows:

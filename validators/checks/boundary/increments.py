@@ -44,9 +44,9 @@ from typing import Any
 
 import numpy as np
 
-from ..reader import Chunk, ChunkRef
-from ..scan import ChunkFault, Statistic, register_statistic
-from .histogram import block_edges
+from massarc.archive.reader import Chunk, ChunkRef
+from massarc.archive.scan import ChunkFault, Statistic
+from massarc.archive.stats.histogram import block_edges
 
 try:  # numba is the optional `fast` extra; without it the NumPy path below is used
     from numba import njit
@@ -279,7 +279,6 @@ class IncrementStats:
     edges: np.ndarray
 
 
-@register_statistic
 class IncrementStatistic(Statistic):
     """The ``increments`` statistic (see the module docstring)."""
 

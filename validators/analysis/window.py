@@ -45,6 +45,7 @@ Replicas with an unreadable snapshot are left out (``replicas`` counts those use
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field, fields
 from typing import Any
 
@@ -52,6 +53,7 @@ import numpy as np
 
 from massarc.schema.laws import relaxation_time
 
+from ..engine.registry import CheckContext
 from .diagnostics import (
     SOKAL_C,
     detect_equilibration,
@@ -61,7 +63,6 @@ from .diagnostics import (
     rhat_rank,
     trend_test,
 )
-from .registry import CheckContext
 
 __all__ = ["OBSERVABLES", "ObservableWindow", "Window", "WindowSettings", "stationary_window"]
 
@@ -90,7 +91,7 @@ class WindowSettings:
     diagnostic_length: int = 8192
 
     @classmethod
-    def from_options(cls, options: dict[str, Any]) -> WindowSettings:
+    def from_options(cls, options: Mapping[str, Any]) -> WindowSettings:
         """Settings from a check's options; keys that are not settings are ignored."""
         names = {f.name for f in fields(cls)}
         return cls(**{k: v for k, v in options.items() if k in names})

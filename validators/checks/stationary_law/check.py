@@ -8,7 +8,7 @@ single-site law P(m) = f(m) Z(N-1, M-m) / Z(N, M) is exact at finite size
 H0: the time-averaged single-site occupation law over the stationary window (all sites,
 snapshots and replicas pooled) is P. Statistic: Pearson's X^2 on the pooled counts with
 merged bins, divided by the trace of the design-effect matrix estimated by batch means
-(second-order Rao-Scott correction in F form, :mod:`massarc.validators.law_fit`); p-value
+(second-order Rao-Scott correction in F form, :mod:`.law_fit`); p-value
 from F(nu, nu (m - 1)) for m batches and Satterthwaite's nu. Batches are whole replicas when
 there are at least ``min_batches`` of them, otherwise runs of consecutive histogram blocks
 of each replica, each at least ``batch_factor`` times the window's statistical
@@ -41,10 +41,10 @@ import numpy as np
 from massarc.schema import ZRPModel
 from massarc.schema.laws import canonical_site_law
 
-from ..law_fit import LawFit, fit_law
-from ..registry import Check, CheckContext, register_check
-from ..result import CheckResult
-from ..window import stationary_window
+from ...analysis.window import stationary_window
+from ...engine.registry import Check, CheckContext, Option
+from ...engine.result import CheckResult
+from .law_fit import LawFit, fit_law
 
 __all__ = ["StationaryLawCheck"]
 
@@ -73,7 +73,6 @@ def _label(group: tuple[int, int], top: int) -> str:
     return f"m = {a}" if a == b else f"m = {a}..{b}"
 
 
-@register_check
 class StationaryLawCheck(Check):
     """Exact finite-size occupation law of the ZRP against the stationary window."""
 
@@ -81,17 +80,25 @@ class StationaryLawCheck(Check):
     description = "single-site occupation law in the stationary window matches the exact ZRP law"
     needs: ClassVar = {"histogram": {}, "snapshots": {}}
     options: ClassVar = {
-        "alpha": 1e-4,
-        "min_expected": 5.0,
-        "max_bins": 40,
-        "min_batches": 16,
-        "batch_factor": 50.0,
-        "min_effective": 1000.0,
-        "start_margin": 5.0,
+        "alpha": Option(1e-4, float, "fail when the p-value of the law test is below this"),
+        "min_expected": Option(
+            5.0, float, "merge bins until each expects at least this effective count"
+        ),
+        "max_bins": Option(40, int, "at most this many bins after merging"),
+        "min_batches": Option(16, int, "batches wanted for the design effect"),
+        "batch_factor": Option(
+            50.0, float, "a batch spans at least this many statistical inefficiencies"
+        ),
+        "min_effective": Option(
+            1000.0, float, "warn when the effective sample is below this (too small to judge)"
+        ),
+        "start_margin": Option(
+            5.0, float, "count from this many statistical inefficiencies after the window start"
+        ),
     }
 
     def _opt(self, ctx: CheckContext, key: str) -> float:
-        return float(ctx.options.get(key, self.options[key]))
+        return float(ctx.options[key])
 
     def run(self, ctx: CheckContext) -> CheckResult:
         meta = ctx.meta

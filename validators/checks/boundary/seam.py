@@ -55,7 +55,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from massarc.archive.stats.increments import AxisIncrements
+from .increments import AxisIncrements
 
 __all__ = ["SeamTest", "seam_test"]
 

@@ -1,6 +1,6 @@
 """The ``boundary`` check: do the declared boundaries agree with the data?
 
-From snapshots (statistical; :mod:`massarc.validators.boundary_stats`). Along every axis
+From snapshots (statistical; :mod:`.seam`). Along every axis
 of at least 8 sites, the seam pair (last site, site 0) is compared with interior bonds and
 with distant site pairs through the correlation of their sign increments between
 consecutive snapshots (the ``increments`` statistic):
@@ -18,7 +18,7 @@ distant pairs are too close for a seam of the other kind to be caught (snapshots
 apart to resolve single moves, or hardly any motion), the axis cannot be judged and the
 check warns, reporting the measured interior-bond correlation.
 
-From the event log (exact; :mod:`massarc.validators.boundary_events`). When the run
+From the event log (exact; :mod:`.events`). When the run
 archives an ``events`` group, every move must join declared neighbours; the first that
 does not is reported (index, replica, time, source, target) and the check fails. A clean
 log settles axes the snapshots could not resolve.
@@ -29,13 +29,13 @@ from __future__ import annotations
 import math
 from typing import Any, ClassVar
 
-from massarc.archive.stats.increments import MIN_LENGTH, IncrementStats
 from massarc.schema.spec import mass_dimensions
 
-from ..boundary_events import EventAudit, audit_events
-from ..boundary_stats import SeamTest, seam_test
-from ..registry import Check, CheckContext, register_check
-from ..result import CheckResult
+from ...engine.registry import Check, CheckContext, Option
+from ...engine.result import CheckResult
+from .events import EventAudit, audit_events
+from .increments import MIN_LENGTH, IncrementStatistic, IncrementStats
+from .seam import SeamTest, seam_test
 
 __all__ = ["BoundaryCheck"]
 
@@ -48,22 +48,30 @@ def _fmt(x: float) -> str:
     return f"{x:.3g}" if math.isfinite(x) else "nan"
 
 
-@register_check
 class BoundaryCheck(Check):
     """Declared boundaries against the data: seam test per axis, exact event audit."""
 
     id = "boundary"
     description = "declared boundaries agree with the data (seam correlations, event log)"
     needs: ClassVar = {"increments": {}}
-    options: ClassVar = {"alpha": 1e-4, "margin": 2.0}
+    provides: ClassVar = (IncrementStatistic,)
+    options: ClassVar = {
+        "alpha": Option(1e-4, float, "false-alarm rate of the seam test, per axis"),
+        "margin": Option(
+            2.0,
+            float,
+            "an axis is judged only when a seam of the other kind would be caught even this "
+            "many standard deviations short of its mean",
+        ),
+    }
 
     def run(self, ctx: CheckContext) -> CheckResult:
         meta = ctx.meta
         if meta is None:
             return self.result("skip", "no valid metadata: the declared boundaries are unknown")
         lattice = meta.lattice
-        alpha = float(ctx.options.get("alpha", self.options["alpha"]))
-        margin = float(ctx.options.get("margin", self.options["margin"]))
+        alpha = float(ctx.options["alpha"])
+        margin = float(ctx.options["margin"])
         thresholds = {"alpha": alpha, "margin": margin}
         ndim = lattice.ndim
 

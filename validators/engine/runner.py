@@ -2,8 +2,10 @@
 
 For each run the union of the enabled checks' ``needs`` is built (identical statistic
 requests are shared; the same statistic with different options gets one instance per
-distinct option set), one :func:`~massarc.archive.scan.scan` feeds them all, and each check
-gets a :class:`~massarc.validators.registry.CheckContext` with its merged options. A check
+distinct option set), one :func:`~massarc.archive.scan.scan` feeds them all (its results
+are addressed by :class:`StatisticKey`), and each check gets a
+:class:`~massarc.validators.engine.registry.CheckContext` holding every declared option:
+the defaults, overridden by the settings, merged here once. A check
 whose preconditions fail is ``skip`` with the reason; a check (or a statistic it needs)
 that raises becomes ``error`` with the exception's one-line message, and the audit goes on.
 
@@ -19,19 +21,19 @@ import json
 import os
 import time
 from collections.abc import Iterable, Mapping
-from typing import Any
+from typing import Any, NamedTuple
 
 from massarc.archive import ArchiveError, Run, open_runs
 from massarc.archive.progress import Progress
-from massarc.archive.scan import ScanResult, Statistic, available_statistics, scan
+from massarc.archive.scan import ScanResult, Statistic, scan
 from massarc.archive.store import location_name
 from massarc.schema.spec import ARCHIVE_MAJOR, ATTRIBUTE_KEY, parse_version
 from massarc.schema.version import __version__
 
-from .config import ConfigError, parse_options
+from ..report.model import AuditReport, RunReport
 from .registry import Check, CheckContext, available_checks
-from .report.model import AuditReport, RunReport
 from .result import CheckResult, worst
+from .settings import ConfigError, parse_options
 
 __all__ = ["audit", "open_for_audit"]
 
@@ -101,65 +103,80 @@ def _precondition(cls: type[Check], run: Run) -> str | None:
     return None
 
 
-def _key(name: str, options: Mapping[str, Any]) -> tuple[str, str]:
-    return name, json.dumps(dict(options), sort_keys=True, default=repr)
+class StatisticKey(NamedTuple):
+    """How the runner asks the single pass for a statistic: its class and its options
+    (as sorted JSON). Checks asking for the same class with the same options share one
+    instance."""
+
+    statistic: type[Statistic]
+    options: str
+
+
+def _statistic_key(statistic: type[Statistic], options: Mapping[str, Any]) -> StatisticKey:
+    return StatisticKey(statistic, json.dumps(dict(options), sort_keys=True, default=repr))
 
 
 class _RunAudit:
     """The checks of one run: statistics requested, the pass, then each check."""
 
-    def __init__(self, run: Run, classes: list[type[Check]], options: Mapping[str, Any]):
+    def __init__(
+        self, run: Run, classes: list[type[Check]], options: Mapping[str, Mapping[str, Any]]
+    ):
         self.run = run
         self.classes = classes
-        self.options = options
+        self.options = options  # check id -> every declared option, merged
         self.results: dict[str, CheckResult] = {}
         self.seconds: dict[str, float] = {}
-        self.instances: dict[tuple[str, str], Statistic] = {}
-        self.trouble: dict[tuple[str, str], str] = {}  # statistic key -> why it is unavailable
-        self.wants: dict[str, dict[str, tuple[str, str]]] = {}
+        self.statistics: dict[StatisticKey, Statistic] = {}
+        self.unavailable: dict[StatisticKey, str] = {}  # key -> why it cannot be computed
+        self.requested: dict[str, dict[str, StatisticKey]] = {}  # check id -> name -> key
         self.cache: dict[str, Any] = {}  # shared by the checks of this run
 
     def plan(self) -> list[type[Check]]:
         runnable = []
-        stats = available_statistics()
         for cls in self.classes:
             reason = _precondition(cls, self.run)
             if reason is not None:
                 self.results[cls.id] = cls().result("skip", f"not run: {reason}")
                 continue
+            requested: dict[str, StatisticKey] = {}
+            if self.run.has_data:
+                missing = [name for name in cls.needs if cls.statistic(name) is None]
+                if missing:  # registration checks needs; a registry swapped since may not
+                    text = f"cannot run: statistic {missing[0]!r} is not registered"
+                    self.results[cls.id] = cls().result("error", text)
+                    continue
+                for name, opts in cls.needs.items():
+                    requested[name] = self._request(cls, name, opts)
+            self.requested[cls.id] = requested
             runnable.append(cls)
-            self.wants[cls.id] = {}
-            if not self.run.has_data:
-                continue
-            for name, opts in cls.needs.items():
-                key = _key(name, opts)
-                self.wants[cls.id][name] = key
-                if key in self.instances or key in self.trouble:
-                    continue
-                if name not in stats:
-                    self.trouble[key] = f"statistic {name!r} is not registered"
-                    continue
-                try:
-                    self.instances[key] = stats[name](self.run, **dict(opts))
-                except Exception as exc:
-                    self.trouble[key] = f"statistic {name!r}: {_one_line(exc)}"
         return runnable
 
-    def check(self, cls: type[Check], res: ScanResult | None) -> CheckResult:
+    def _request(self, cls: type[Check], name: str, opts: Mapping[str, Any]) -> StatisticKey:
+        """The key of statistic ``name`` with ``opts`` for ``cls``; one instance per key."""
+        statistic = cls.statistic(name)
+        assert statistic is not None
+        key = _statistic_key(statistic, opts)
+        if key not in self.statistics and key not in self.unavailable:
+            try:
+                self.statistics[key] = statistic(self.run, **dict(opts))
+            except Exception as exc:
+                self.unavailable[key] = f"statistic {name!r}: {_one_line(exc)}"
+        return key
+
+    def check(self, cls: type[Check], res: ScanResult[StatisticKey] | None) -> CheckResult:
         stats: dict[str, Any] = {}
-        keys = list(self.instances)
-        for name, key in self.wants.get(cls.id, {}).items():
-            if key in self.trouble:
-                return cls().result("error", f"cannot run: {self.trouble[key]}")
-            k = keys.index(key)
-            if res is not None and k in res.errors:
-                return cls().result("error", f"statistic {name!r} failed: {res.errors[k]}")
-            stats[name] = res.ordered[k] if res is not None else None
+        for name, key in self.requested.get(cls.id, {}).items():
+            if key in self.unavailable:
+                return cls().result("error", f"cannot run: {self.unavailable[key]}")
+            if res is not None and key in res.errors:
+                return cls().result("error", f"statistic {name!r} failed: {res.errors[key]}")
+            stats[name] = res.results[key] if res is not None else None
         ctx = CheckContext(
             run=self.run,
             meta=self.run.meta,
             stats=stats,
-            options={**cls.options, **self.options.get(cls.id, {})},
+            options=self.options[cls.id],
             cache=self.cache,
             faults=list(res.faults) if res is not None else [],
         )
@@ -175,12 +192,11 @@ class _RunAudit:
 
     def execute(
         self, strict: bool, workers: int | None, progress: Progress | None
-    ) -> tuple[list[CheckResult], ScanResult | None]:
+    ) -> tuple[list[CheckResult], ScanResult[StatisticKey] | None]:
         runnable = self.plan()
         res = None
-        if self.instances:
-            stats = list(self.instances.values())
-            res = scan(self.run, stats, progress=progress, workers=workers)
+        if self.statistics:
+            res = scan(self.run, self.statistics, progress=progress, workers=workers)
         for cls in runnable:
             started = time.perf_counter()
             out = self.check(cls, res)
@@ -224,13 +240,15 @@ def audit(
         The configuration file the settings came from (recorded in the report).
 
     Raises :class:`~massarc.archive.ArchiveError` for a location that is not a readable
-    run, and :class:`~massarc.validators.config.ConfigError` for unknown ids or options.
+    run, and :class:`~massarc.validators.engine.settings.ConfigError` for unknown ids or
+    options.
     """
     started = time.perf_counter()
     registry = available_checks()
     chosen, skipped = _select(checks, skip, registry)
     classes = [registry[c] for c in chosen if c not in skipped]
-    opts = parse_options(dict(options or {}), registry, "options")
+    settings = parse_options(dict(options or {}), registry, "options")
+    merged = {cls.id: cls.option_values(settings.get(cls.id)) for cls in classes}
     opened: list[Run] = []
     for item in runs:
         opened.extend([item] if isinstance(item, Run) else open_for_audit(item))
@@ -245,7 +263,7 @@ def audit(
             if progress is not None:
                 progress(base + done, grand, "chunks")
 
-        worker = _RunAudit(run, classes, opts)
+        worker = _RunAudit(run, classes, merged)
         ran, res = worker.execute(strict, workers, tick)
         by_id = {r.id: r for r in ran}
         results = [

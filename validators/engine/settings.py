@@ -29,7 +29,7 @@ from pydantic import BaseModel, ConfigDict, Field
 
 from massarc.schema import MetadataError, apply_overrides
 
-from .registry import Check, available_checks
+from .registry import Check, Option, available_checks
 
 __all__ = [
     "FILE_NAME",
@@ -78,24 +78,11 @@ def _check_ids(
     return tuple(dict.fromkeys(out))
 
 
-def _option_value(value: Any, default: Any, where: str) -> Any:
-    """``value`` if it has the type of ``default`` (ints and floats mix), else an error."""
-    if default is None:
-        return value
-    if isinstance(default, bool):
-        ok, what = isinstance(value, bool), "true or false"
-    elif isinstance(default, int | float):
-        ok, what = isinstance(value, int | float) and not isinstance(value, bool), "a number"
-    elif isinstance(default, str):
-        ok, what = isinstance(value, str), "a string"
-    elif isinstance(default, list | tuple):
-        ok, what = isinstance(value, list | tuple), "a list"
-    elif isinstance(default, Mapping):
-        ok, what = isinstance(value, Mapping), "a table"
-    else:
-        ok, what = True, ""
-    if not ok:
-        raise ConfigError(f"{where}: expected {what}; got {value!r}")
+def _option_value(value: Any, option: Option, where: str) -> Any:
+    """``value`` if it has the option's declared type (an int where a float is declared
+    is fine), else an error naming ``where``."""
+    if not option.accepts(value):
+        raise ConfigError(f"{where}: expected {option.expected}; got {value!r}")
     return value
 
 
@@ -105,8 +92,8 @@ def parse_options(
     where: str = "options",
     sep: str = ".",
 ) -> dict[str, dict[str, Any]]:
-    """Validate ``{check id: {option: value}}`` against the checks' declared options;
-    errors name ``where`` + ``sep`` + the key path.
+    """Validate ``{check id: {option: value}}`` against the checks' declared options (their
+    names and types); errors name ``where`` + ``sep`` + the key path.
 
     >>> parse_options({"conservation": {"tolerance": 2}})
     {'conservation': {'tolerance': 2}}
