@@ -48,7 +48,7 @@ def test_minimal_toml_and_json_are_the_same_contract(tmp_path: Path) -> None:
     b = load_metadata(tmp_path / "meta.json")
     assert a == b
     assert a.model.family == "zrp" and a.model.b == 3.5 and a.model.right_probability == 1.0
-    assert a.lattice.boundary == ["periodic"] and a.lattice.volume == 200
+    assert a.lattice.boundary == ("periodic",) and a.lattice.volume == 200
     assert a.run.regime == "stationary"
 
 
@@ -140,7 +140,7 @@ def test_overrides_apply_typed_values(tmp_path: Path) -> None:
         tmp_path / "meta.toml", ["model.b=4", "run.regime=transient", "lattice.sites=[10, 20]"]
     )
     assert meta.model.b == 4 and meta.run.regime == "transient"
-    assert meta.lattice.sites == [10, 20] and meta.lattice.boundary == ["periodic", "periodic"]
+    assert meta.lattice.sites == (10, 20) and meta.lattice.boundary == ("periodic", "periodic")
 
 
 @pytest.mark.parametrize("which", ["metadata", "header"])
