@@ -1,9 +1,10 @@
-"""Read-only, hashable containers for the metadata models.
+"""Read-only, hashable containers for the metadata models, and the field types that use them.
 
-Sequence fields of the models are tuples; free tables (``CustomModel.parameters``,
-``RunMeta.extra``) are :class:`FrozenMap`, deep-frozen: a table inside becomes a
-:class:`FrozenMap` and a list a tuple. Dumping gives plain dicts and lists again, so what is
-written (archive header, JSON, TOML) does not depend on the frozen types.
+Sequence fields of the models are tuples (:data:`Items`); free tables
+(``CustomModel.parameters``, ``RunMeta.extra``) are :class:`FrozenMap`, deep-frozen: a table
+inside becomes a :class:`FrozenMap` and a list a tuple (:data:`Table`). Dumping gives plain
+dicts and lists again, so what is written (archive header, JSON, TOML) does not depend on
+the frozen types.
 
 >>> table = freeze({"scenario": "depot ring", "depots": [1, 2], "line": {"km": 12.5}})
 >>> table["line"]["km"], table["depots"]
@@ -17,10 +18,13 @@ True
 from __future__ import annotations
 
 from collections.abc import Iterator, Mapping
-from typing import Any, TypeVar
+from typing import TYPE_CHECKING, Annotated, Any, TypeAlias, TypeVar
 
-__all__ = ["FrozenMap", "freeze", "thaw"]
+from pydantic import AfterValidator, PlainSerializer, Strict
 
+__all__ = ["FrozenMap", "Items", "Table", "freeze", "thaw"]
+
+T = TypeVar("T")
 V = TypeVar("V")
 
 
@@ -70,3 +74,14 @@ def thaw(value: Any) -> Any:
     if isinstance(value, list | tuple):
         return [thaw(v) for v in value]
     return value
+
+
+if TYPE_CHECKING:
+    Items: TypeAlias = tuple[T, ...]
+else:
+    #: A sequence field: read as a list (a JSON or TOML array; a tuple from Python), held as
+    #: a tuple, dumped as a list. The list validator reports length and item errors cleanly.
+    Items = Annotated[list[T], Strict(False), AfterValidator(tuple), PlainSerializer(list)]
+
+#: A free table: read as a table, held deep-frozen (:class:`FrozenMap`, tuples), dumped plain.
+Table = Annotated[Mapping[str, T], AfterValidator(freeze), PlainSerializer(thaw)]

@@ -28,17 +28,13 @@ Everything else is optional or derived from the data.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
 from datetime import datetime
-from typing import TYPE_CHECKING, Annotated, Any, Literal, TypeAlias, TypeVar, get_args
+from typing import Annotated, Any, Literal, get_args
 
 from pydantic import (
-    AfterValidator,
     BaseModel,
     ConfigDict,
     Field,
-    PlainSerializer,
-    Strict,
     ValidationError,
     ValidationInfo,
     WrapValidator,
@@ -47,7 +43,7 @@ from pydantic import (
 )
 from pydantic_core import InitErrorDetails, PydanticCustomError, PydanticKnownError
 
-from .frozen import FrozenMap, freeze, thaw
+from .frozen import FrozenMap, Items, Table
 
 __all__ = [
     "BOUNDARIES",
@@ -68,22 +64,6 @@ __all__ = [
 Boundary = Literal["periodic", "reflecting", "open"]
 BOUNDARIES: tuple[str, ...] = get_args(Boundary)
 Drift = Literal["symmetric", "asymmetric"]
-
-T = TypeVar("T")
-if TYPE_CHECKING:
-    Items: TypeAlias = tuple[T, ...]
-else:
-    #: A sequence field: read as a list (a JSON or TOML array; a tuple from Python), held as
-    #: a tuple, dumped as a list. The list validator reports length and item errors cleanly.
-    Items = Annotated[list[T], Strict(False), AfterValidator(tuple), PlainSerializer(list)]
-
-
-def _read_only_table(value: Mapping[str, Any]) -> FrozenMap[Any]:
-    return freeze(value)
-
-
-#: A free table: read as a table, held deep-frozen (:class:`FrozenMap`, tuples), dumped plain.
-Table = Annotated[Mapping[str, T], AfterValidator(_read_only_table), PlainSerializer(thaw)]
 
 
 def _one_scalar(value: Any, handler: Any) -> Any:
