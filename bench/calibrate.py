@@ -165,7 +165,7 @@ def fault_boundary(true_b: str, declared_b: str) -> Callable[..., tuple[Path, st
             case = Case(truth, truth, 2000.0, 4000, 1.0, "uniform")
         x, t = simulate_case(case, seed)
         declared = truth.model_copy(
-            update={"lattice": truth.lattice.model_copy(update={"boundary": [declared_b]})}
+            update={"lattice": truth.lattice.model_copy(update={"boundary": (declared_b,)})}
         )
         return write(tmp / "f.zarr", declared, x, t), "boundary"
 

@@ -16,6 +16,7 @@ if TYPE_CHECKING:
     from .header import ArchiveHeader, NewerFormatWarning, WriteState, parse_header
     from .load import apply_overrides, load_metadata, parse_metadata, read_metadata_file
     from .models import (
+        FAMILIES,
         CMAMModel,
         CustomModel,
         InitialCondition,
@@ -44,6 +45,7 @@ _HOME = {
     "load_metadata": "load",
     "parse_metadata": "load",
     "read_metadata_file": "load",
+    "FAMILIES": "models",
     "CMAMModel": "models",
     "CustomModel": "models",
     "InitialCondition": "models",
@@ -59,6 +61,7 @@ _HOME = {
 __all__ = [
     "ARCHIVE_VERSION",
     "ATTRIBUTE_KEY",
+    "FAMILIES",
     "RUN_KIND",
     "ArchiveHeader",
     "CMAMModel",

@@ -1,7 +1,9 @@
 """Readable, one-line messages for invalid metadata.
 
 A pydantic ``ValidationError`` becomes a :class:`MetadataError` whose lines read
-``lattice.boundary: expected one of periodic, reflecting, open; got "ring"``.
+``lattice.boundary: expected one of periodic, reflecting, open; got "ring"``. The key path
+comes from pydantic's error location only (the models locate every error, cross-field ones
+included, at the key it is about); the reason from the error type and its context.
 """
 
 from __future__ import annotations
@@ -12,9 +14,9 @@ from typing import Any
 
 from pydantic import ValidationError
 
-__all__ = ["MetadataError", "validation_problems"]
+from .models import FAMILIES
 
-_FAMILIES = {"zrp", "cmam", "custom"}
+__all__ = ["MetadataError", "key_path", "validation_problems"]
 
 
 class MetadataError(ValueError):
@@ -38,19 +40,29 @@ def _got(value: Any) -> str:
         return repr(value)
 
 
+def key_path(loc: tuple[int | str, ...]) -> list[int | str]:
+    """The keys of the file in a pydantic error location, without the labels pydantic adds.
+
+    >>> key_path(("metadata", "model", "zrp", "right_probability"))
+    ['metadata', 'model', 'right_probability']
+    """
+    out: list[int | str] = []
+    for item in loc:
+        if isinstance(item, str) and out and out[-1] == "model" and item in FAMILIES:
+            continue  # the discriminated-union tag pydantic inserts
+        if isinstance(item, str) and ("[" in item or item.startswith("function-")):
+            continue  # union-member labels such as "list[float]"
+        out.append(item)
+    return out
+
+
 def _path(loc: tuple[int | str, ...]) -> str:
     out = ""
-    prev: int | str | None = None
-    for item in loc:
+    for item in key_path(loc):
         if isinstance(item, int):
             out += f"[{item}]"
-        elif prev == "model" and item in _FAMILIES:
-            pass  # the discriminated-union tag pydantic inserts; not a key of the file
-        elif "[" in item or item.startswith("function-"):
-            pass  # union-member labels such as "list[float]"
         else:
             out += ("." if out else "") + item
-        prev = item
     return out or "(top level)"
 
 
@@ -73,17 +85,19 @@ def _reason(err: dict[str, Any]) -> str:
         choices = ", ".join(_QUOTED.findall(str(ctx.get("expected_tags", ""))))
         return f"expected one of {choices}; got {_got(ctx.get('tag', value))}"
     if kind == "union_tag_not_found":
-        return "required key family is missing (one of zrp, cmam, custom)"
+        return f"required key family is missing (one of {', '.join(FAMILIES)})"
     simple = {
         "int_type": "an integer",
         "float_type": "a number",
         "string_type": "a string",
         "bool_type": "true or false",
         "list_type": "a list",
+        "tuple_type": "a list",
         "dict_type": "a table",
         "model_type": "a table",
         "model_attributes_type": "a table",
         "int_from_float": "an integer",
+        "finite_number": "a finite number",
     }
     if kind in simple:
         return f"expected {simple[kind]}; got {_got(value)}"
@@ -105,21 +119,9 @@ def _reason(err: dict[str, Any]) -> str:
 
 
 def validation_problems(exc: ValidationError) -> list[str]:
-    """One ``key.path: reason`` line per error of a pydantic ``ValidationError``.
-
-    A custom error whose message already starts with its own key (``boundary: ...``)
-    is not prefixed twice.
-    """
+    """One ``key.path: reason`` line per error of a pydantic ``ValidationError``."""
     lines: list[str] = []
     for err in exc.errors(include_url=False):
         reason = _reason(err)  # may extend err["loc"] (the discriminator key)
-        path = _path(tuple(err["loc"]))
-        head = reason.split(":", 1)[0]
-        if ":" in reason and " " not in head and head:
-            # the validator named the key itself (e.g. "boundary: ..."); join the paths
-            path = head if path == "(top level)" else f"{path}.{head}"
-            if path.endswith(f".{head}.{head}"):
-                path = path[: -len(head) - 1]
-            reason = reason.split(":", 1)[1].strip()
-        lines.append(f"{path}: {reason}")
+        lines.append(f"{_path(tuple(err['loc']))}: {reason}")
     return list(dict.fromkeys(lines))

@@ -17,7 +17,7 @@ from typing import Any, Literal
 
 from pydantic import Field, ValidationError
 
-from .errors import MetadataError, validation_problems
+from .errors import MetadataError, key_path, validation_problems
 from .models import RunMeta, StrictModel
 from .spec import ARCHIVE_MAJOR, ARCHIVE_MINOR, RUN_KIND, parse_version
 
@@ -60,7 +60,7 @@ def _strip_unknown(data: Any, exc: ValidationError) -> Any:
         if err["type"] != "extra_forbidden":
             continue
         node = data
-        loc = [p for p in err["loc"] if p not in {"zrp", "cmam", "custom"}]
+        loc = key_path(err["loc"])
         for part in loc[:-1]:
             node = node[part] if isinstance(node, dict | list) else None
             if node is None:

@@ -4,7 +4,7 @@
 ...                        "lattice": {"sites": [64], "boundary": "periodic"},
 ...                        "run": {"regime": "transient"}})
 >>> meta.lattice.boundary
-['periodic']
+('periodic',)
 """
 
 from __future__ import annotations

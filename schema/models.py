@@ -1,7 +1,14 @@
 """The metadata of one run: strict, frozen pydantic models.
 
 Unknown keys are errors (``extra="forbid"``), values are not coerced (``strict=True``) and
-models are immutable. The model family is a discriminated union on ``model.family``.
+models are immutable and hashable: sequences are tuples and free tables read-only
+(:mod:`.frozen`); dumping gives plain lists and dicts. The model family is a discriminated
+union on ``model.family``; :data:`FAMILIES` lists its tags.
+
+A rule that involves several keys reports its error at the key it is about (a per-field
+validator that reads the keys declared before it, or an error built with its location),
+so that :func:`~.errors.validation_problems` takes every key path from pydantic's error
+locations.
 
 The minimal hand-written file is a contract::
 
@@ -22,13 +29,25 @@ from __future__ import annotations
 
 import math
 from datetime import datetime
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, Literal, get_args
 
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
-from pydantic_core import PydanticCustomError
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationError,
+    ValidationInfo,
+    WrapValidator,
+    field_validator,
+    model_validator,
+)
+from pydantic_core import InitErrorDetails, PydanticCustomError, PydanticKnownError
+
+from .frozen import FrozenMap, Items, Table
 
 __all__ = [
     "BOUNDARIES",
+    "FAMILIES",
     "CMAMModel",
     "CustomModel",
     "InitialCondition",
@@ -42,15 +61,41 @@ __all__ = [
     "ZRPModel",
 ]
 
-BOUNDARIES = ("periodic", "reflecting", "open")
 Boundary = Literal["periodic", "reflecting", "open"]
+BOUNDARIES: tuple[str, ...] = get_args(Boundary)
 Drift = Literal["symmetric", "asymmetric"]
+
+
+def _one_scalar(value: Any, handler: Any) -> Any:
+    """One error for a value that is none of the scalar types (not one per type tried)."""
+    try:
+        return handler(value)
+    except ValidationError:
+        raise PydanticCustomError(
+            "scalar_type", "expected a number, a string or true/false; got {got}", {"got": value}
+        ) from None
+
+
+Scalar = Annotated[float | int | str | bool, WrapValidator(_one_scalar)]
+
+
+def _error_at(
+    loc: tuple[str | int, ...], error: PydanticCustomError, value: Any
+) -> ValidationError:
+    """A validation error located at ``loc`` below the field or model that raises it."""
+    return ValidationError.from_exception_data(
+        "RunMeta", [InitErrorDetails(type=error, loc=loc, input=value)]
+    )
 
 
 class StrictModel(BaseModel):
     """Base of every metadata model: unknown keys are errors, nothing is coerced, frozen."""
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+
+
+#: What the JSON Schema says of a rate that :func:`_finite_positive` checks.
+_POSITIVE = {"exclusiveMinimum": 0}
 
 
 def _finite_positive(value: float) -> float:
@@ -69,43 +114,44 @@ class _Drift(StrictModel):
         description="symmetric: every neighbour equally likely; asymmetric: biased towards +axis.",
     )
     right_probability: float = Field(
-        0.5,
+        None,  # type: ignore[assignment]  # filled from drift by _default_from_drift
+        validate_default=True,
         description="Probability that a move goes to the +1 neighbour along its axis. "
         "Default 0.5 when symmetric, 1.0 (totally asymmetric) when asymmetric.",
     )
 
-    @model_validator(mode="before")
+    @field_validator(
+        "right_probability",
+        mode="before",
+        json_schema_input_type=Annotated[float, Field(ge=0, le=1)] | None,
+    )
     @classmethod
-    def _default_right_probability(cls, data: Any) -> Any:
-        """Fill ``right_probability`` from ``drift`` when it is not given."""
-        if isinstance(data, dict) and data.get("right_probability") is None:
-            data = {k: v for k, v in data.items() if k != "right_probability"}
-            if data.get("drift") == "asymmetric":
-                data["right_probability"] = 1.0
-        return data
+    def _default_from_drift(cls, value: Any, info: ValidationInfo) -> Any:
+        """Fill ``right_probability`` from ``drift`` when it is not given (or null)."""
+        if value is None:
+            return 1.0 if info.data.get("drift") == "asymmetric" else 0.5
+        return value
 
-    @model_validator(mode="after")
-    def _check_drift(self) -> _Drift:
-        p = self.right_probability
+    @field_validator("right_probability")
+    @classmethod
+    def _check_drift(cls, p: float, info: ValidationInfo) -> float:
         if not 0.0 <= p <= 1.0:
             raise PydanticCustomError(
-                "probability",
-                "right_probability: expected a value in [0, 1]; got {got}",
-                {"got": p},
+                "probability", "expected a value in [0, 1]; got {got}", {"got": p}
             )
-        if self.drift == "symmetric" and p != 0.5:
+        drift = info.data.get("drift")  # absent when drift itself is invalid
+        if drift == "symmetric" and p != 0.5:
             raise PydanticCustomError(
                 "drift_mismatch",
-                'right_probability: expected 0.5 for drift = "symmetric"; got {got}',
+                'expected 0.5 for drift = "symmetric"; got {got}',
                 {"got": p},
             )
-        if self.drift == "asymmetric" and p == 0.5:
+        if drift == "asymmetric" and p == 0.5:
             raise PydanticCustomError(
                 "drift_mismatch",
-                'right_probability: expected a value other than 0.5 for drift = "asymmetric"; '
-                "got 0.5",
+                'expected a value other than 0.5 for drift = "asymmetric"; got 0.5',
             )
-        return self
+        return p
 
 
 class ZRPModel(_Drift):
@@ -117,10 +163,23 @@ class ZRPModel(_Drift):
 
     family: Literal["zrp"]
     b: float | None = Field(None, description="u(k) = 1 + b/k.")
-    rate: float | None = Field(None, description="Constant hop rate u(k) = rate.")
-    rates: list[float] | None = Field(
+    rate: float | None = Field(
+        None, description="Constant hop rate u(k) = rate.", json_schema_extra=_POSITIVE
+    )
+    rates: Items[Annotated[float, Field(json_schema_extra=_POSITIVE)]] | None = Field(
         None, description="u(1), ..., u(K); u(k) = u(K) for k > K.", min_length=1
     )
+
+    @field_validator("b")
+    @classmethod
+    def _b_above_minus_one(cls, v: float | None) -> float | None:
+        if v is not None and (not math.isfinite(v) or v <= -1):
+            raise PydanticCustomError(
+                "hop_law",
+                "expected a finite value > -1 (so that u(1) > 0); got {got}",
+                {"got": v},
+            )
+        return v
 
     @field_validator("rate")
     @classmethod
@@ -129,7 +188,7 @@ class ZRPModel(_Drift):
 
     @field_validator("rates")
     @classmethod
-    def _rates_positive(cls, v: list[float] | None) -> list[float] | None:
+    def _rates_positive(cls, v: tuple[float, ...] | None) -> tuple[float, ...] | None:
         if v is None:
             return v
         for k, r in enumerate(v, start=1):
@@ -150,12 +209,6 @@ class ZRPModel(_Drift):
                 "expected exactly one hop-rate law among b, rate, rates; got {got}",
                 {"got": ", ".join(given) if given else "none"},
             )
-        if self.b is not None and (not math.isfinite(self.b) or self.b <= -1):
-            raise PydanticCustomError(
-                "hop_law",
-                "b: expected a finite value > -1 (so that u(1) > 0); got {got}",
-                {"got": self.b},
-            )
         return self
 
 
@@ -163,8 +216,12 @@ class CMAMModel(_Drift):
     """Conserved-mass aggregation/chipping: a whole cluster hops at rate D, one unit chips at w."""
 
     family: Literal["cmam"]
-    diffusion: float = Field(description="Rate D at which a site's whole mass hops.")
-    chipping: float = Field(description="Rate w at which a single unit chips off.")
+    diffusion: float = Field(
+        description="Rate D at which a site's whole mass hops.", json_schema_extra=_POSITIVE
+    )
+    chipping: float = Field(
+        description="Rate w at which a single unit chips off.", json_schema_extra=_POSITIVE
+    )
 
     @field_validator("diffusion", "chipping")
     @classmethod
@@ -177,10 +234,17 @@ class CustomModel(StrictModel):
 
     family: Literal["custom"]
     description: str
-    parameters: dict[str, float | int | str | bool] = Field(default_factory=dict)
+    parameters: Table[Scalar] = Field(default_factory=FrozenMap)
 
 
-Model = Annotated[ZRPModel | CMAMModel | CustomModel, Field(discriminator="family")]
+_Families = ZRPModel | CMAMModel | CustomModel
+Model = Annotated[_Families, Field(discriminator="family")]
+#: The model families, in declaration order: the tags of the discriminated union ``Model``.
+FAMILIES: tuple[str, ...] = tuple(
+    tag
+    for member in get_args(_Families)
+    for tag in get_args(member.model_fields["family"].annotation)
+)
 
 
 class OpenRates(StrictModel):
@@ -193,39 +257,43 @@ class OpenRates(StrictModel):
 class Lattice(StrictModel):
     """Lattice shape (one entry per axis, at most 2) and the boundary of each axis."""
 
-    sites: list[Annotated[int, Field(gt=0)]] = Field(min_length=1, max_length=2)
-    boundary: list[Boundary] = Field(
+    sites: Items[Annotated[int, Field(gt=0)]] = Field(min_length=1, max_length=2)
+    boundary: Items[Boundary] = Field(
         description='One of "periodic", "reflecting", "open", or one per axis.'
     )
     open: OpenRates | None = None
 
-    @model_validator(mode="before")
+    @field_validator("boundary", mode="before", json_schema_input_type=Boundary | list[Boundary])
     @classmethod
-    def _broadcast_boundary(cls, data: Any) -> Any:
-        if not isinstance(data, dict):
-            return data
-        b = data.get("boundary")
-        if isinstance(b, str):
-            if b not in BOUNDARIES:
-                raise PydanticCustomError(
-                    "boundary",
-                    "boundary: expected one of periodic, reflecting, open; got {got}",
-                    {"got": f'"{b}"'},
-                )
-            sites = data.get("sites")
-            n = len(sites) if isinstance(sites, list) and sites else 1
-            data = {**data, "boundary": [b] * n}
-        return data
+    def _one_for_every_axis(cls, value: Any, info: ValidationInfo) -> Any:
+        """A single string (hand-written files) applies to every axis."""
+        if isinstance(value, list | tuple):
+            return value
+        if not isinstance(value, str):
+            raise PydanticCustomError(
+                "boundary_type",
+                "expected one of {choices}, or a list of them; got {got}",
+                {"choices": ", ".join(BOUNDARIES), "got": value},
+            )
+        if value not in BOUNDARIES:
+            # the error pydantic gives for a wrong entry of the list, so it reads the same
+            raise PydanticKnownError(
+                "literal_error", {"expected": ", ".join(map(repr, BOUNDARIES))}
+            )
+        sites = info.data.get("sites")  # absent when sites itself is invalid
+        return (value,) * (len(sites) if sites else 1)
 
-    @model_validator(mode="after")
-    def _shape(self) -> Lattice:
-        if len(self.boundary) != len(self.sites):
+    @field_validator("boundary")
+    @classmethod
+    def _one_per_axis(cls, value: tuple[str, ...], info: ValidationInfo) -> tuple[str, ...]:
+        sites = info.data.get("sites")
+        if sites is not None and len(value) != len(sites):
             raise PydanticCustomError(
                 "boundary",
-                "boundary: expected one entry per axis ({n}); got {got}",
-                {"n": len(self.sites), "got": len(self.boundary)},
+                "expected one entry per axis ({n}); got {got}",
+                {"n": len(sites), "got": len(value)},
             )
-        return self
+        return value
 
     @property
     def ndim(self) -> int:
@@ -270,7 +338,7 @@ class RunInfo(StrictModel):
     total_mass: Annotated[int, Field(ge=0)] | None = Field(
         None, description="Mass per replica (closed systems: the same in every snapshot)."
     )
-    density: Annotated[float, Field(ge=0)] | None = Field(
+    density: Annotated[float, Field(ge=0, allow_inf_nan=False)] | None = Field(
         None, description="total_mass / number of sites."
     )
     initial: InitialCondition | None = None
@@ -278,15 +346,7 @@ class RunInfo(StrictModel):
     sampling: Literal["linear", "log", "other"] | None = Field(
         None, description="How snapshot times were spaced."
     )
-    seeds: list[int] | None = Field(None, description="One seed per replica, in replica order.")
-
-    @model_validator(mode="after")
-    def _finite(self) -> RunInfo:
-        if self.density is not None and not math.isfinite(self.density):
-            raise PydanticCustomError(
-                "density", "density: expected a finite number; got {got}", {"got": self.density}
-            )
-        return self
+    seeds: Items[int] | None = Field(None, description="One seed per replica, in replica order.")
 
 
 class RunMeta(StrictModel):
@@ -297,7 +357,7 @@ class RunMeta(StrictModel):
     run: RunInfo
     simulator: Simulator | None = None
     created: str | None = Field(None, description="ISO 8601 creation time.")
-    extra: dict[str, Any] = Field(default_factory=dict, description="Free table.")
+    extra: Table[Any] = Field(default_factory=FrozenMap, description="Free table.")
 
     @field_validator("created")
     @classmethod
@@ -311,15 +371,21 @@ class RunMeta(StrictModel):
                 ) from None
         return v
 
-    @model_validator(mode="after")
-    def _consistent(self) -> RunMeta:
-        r, lat = self.run, self.lattice
-        if r.total_mass is not None and r.density is not None:
-            implied = r.total_mass / lat.volume
-            if not math.isclose(implied, r.density, rel_tol=1e-9, abs_tol=1e-12):
-                raise PydanticCustomError(
+    @field_validator("run")
+    @classmethod
+    def _density_of_total_mass(cls, run: RunInfo, info: ValidationInfo) -> RunInfo:
+        lattice = info.data.get("lattice")  # absent when lattice itself is invalid
+        if lattice is None or run.total_mass is None or run.density is None:
+            return run
+        implied = run.total_mass / lattice.volume
+        if not math.isclose(implied, run.density, rel_tol=1e-9, abs_tol=1e-12):
+            raise _error_at(
+                ("density",),
+                PydanticCustomError(
                     "density",
-                    "run.density: expected total_mass / sites = {implied}; got {got}",
-                    {"implied": implied, "got": r.density},
-                )
-        return self
+                    "expected total_mass / sites = {implied}; got {got}",
+                    {"implied": implied, "got": run.density},
+                ),
+                run.density,
+            )
+        return run

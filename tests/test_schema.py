@@ -11,6 +11,7 @@ import jsonschema
 import pytest
 
 from massarc.schema import (
+    FAMILIES,
     MetadataError,
     NewerFormatWarning,
     json_schema,
@@ -48,7 +49,7 @@ def test_minimal_toml_and_json_are_the_same_contract(tmp_path: Path) -> None:
     b = load_metadata(tmp_path / "meta.json")
     assert a == b
     assert a.model.family == "zrp" and a.model.b == 3.5 and a.model.right_probability == 1.0
-    assert a.lattice.boundary == ["periodic"] and a.lattice.volume == 200
+    assert a.lattice.boundary == ("periodic",) and a.lattice.volume == 200
     assert a.run.regime == "stationary"
 
 
@@ -123,6 +124,79 @@ def test_readable_errors(change: dict, expected: str) -> None:
     assert "\n" not in str(err.value)
 
 
+@pytest.mark.parametrize(
+    ("change", "problems"),
+    [
+        (  # one line for a single string, not one per axis it would apply to
+            {"lattice": {"sites": [4, 4], "boundary": "ring"}},
+            ['lattice.boundary: expected one of periodic, reflecting, open; got "ring"'],
+        ),
+        (
+            {"lattice": {"sites": [4, 4], "boundary": ["periodic", "ring"]}},
+            ['lattice.boundary[1]: expected one of periodic, reflecting, open; got "ring"'],
+        ),
+        (
+            {"lattice": {"sites": [4], "boundary": 3}},
+            [
+                "lattice.boundary: expected one of periodic, reflecting, open, or a list of them; "
+                "got 3"
+            ],
+        ),
+        (  # an invalid shape is reported once, not again as a boundary of the wrong length
+            {"lattice": {"sites": [4, 0], "boundary": "periodic"}},
+            ["lattice.sites[1]: expected a value > 0; got 0"],
+        ),
+        (
+            {"model": {"family": "zrp", "b": 1.0, "drift": "symmetric", "right_probability": 0.7}},
+            ['model.right_probability: expected 0.5 for drift = "symmetric"; got 0.7'],
+        ),
+        (
+            {
+                "model": {
+                    "family": "cmam",
+                    "diffusion": 1.0,
+                    "chipping": 1.0,
+                    "drift": "asymmetric",
+                    "right_probability": 0.5,
+                }
+            },
+            [
+                "model.right_probability: expected a value other than 0.5 for drift = "
+                '"asymmetric"; got 0.5'
+            ],
+        ),
+        (
+            {"model": {"family": "zrp", "b": 1.0, "right_probability": 1.5, "drift": "asymmetric"}},
+            ["model.right_probability: expected a value in [0, 1]; got 1.5"],
+        ),
+        (
+            {"model": {"family": "zrp", "b": -1.0}},
+            ["model.b: expected a finite value > -1 (so that u(1) > 0); got -1.0"],
+        ),
+        (
+            {"model": {"family": "custom", "description": "x", "parameters": {"q": [1]}}},
+            ["model.parameters.q: expected a number, a string or true/false; got [1]"],
+        ),
+        (
+            {"model": {"drift": "symmetric"}},
+            ["model: required key family is missing (one of zrp, cmam, custom)"],
+        ),
+        (
+            {"run": {"regime": "stationary", "density": float("inf")}},
+            ["run.density: expected a finite number; got Infinity"],
+        ),
+        (
+            {"run": {"regime": "stationary", "seeds": [1, "2"]}},
+            ['run.seeds[1]: expected an integer; got "2"'],
+        ),
+    ],
+)
+def test_each_error_is_one_line_at_its_key(change: dict, problems: list[str]) -> None:
+    with pytest.raises(MetadataError) as err:
+        parse_metadata({**MINIMAL, **change})
+    assert err.value.problems == problems
+
+
 def test_syntax_errors_name_the_file(tmp_path: Path) -> None:
     p = tmp_path / "meta.toml"
     p.write_text("[model\nfamily = 'zrp'\n")
@@ -140,7 +214,7 @@ def test_overrides_apply_typed_values(tmp_path: Path) -> None:
         tmp_path / "meta.toml", ["model.b=4", "run.regime=transient", "lattice.sites=[10, 20]"]
     )
     assert meta.model.b == 4 and meta.run.regime == "transient"
-    assert meta.lattice.sites == [10, 20] and meta.lattice.boundary == ["periodic", "periodic"]
+    assert meta.lattice.sites == (10, 20) and meta.lattice.boundary == ("periodic", "periodic")
 
 
 @pytest.mark.parametrize("which", ["metadata", "header"])
@@ -187,3 +261,18 @@ def test_same_minor_unknown_field_is_an_error() -> None:
         warnings.simplefilter("error")
         with pytest.raises(MetadataError, match=r"metadata\.provenance_hash: unknown key"):
             parse_header(_header("1.0", provenance_hash="abc"), "run.zarr")
+
+
+def test_newer_minor_drops_unknown_fields_inside_the_model_family() -> None:
+    # pydantic locates the key at metadata.model.zrp.hop_cutoff; the family tag is not a key
+    raw = _header("1.3")
+    raw["metadata"]["model"]["hop_cutoff"] = 40
+    with pytest.warns(NewerFormatWarning):
+        header = parse_header(raw, "run.zarr")
+    assert header.metadata.model.b == 3.5
+    assert "hop_cutoff" not in header.metadata.model.model_dump()
+
+
+def test_the_families_are_the_tags_of_the_model_union() -> None:
+    mapping = json_schema("metadata")["properties"]["model"]["discriminator"]["mapping"]
+    assert FAMILIES == ("zrp", "cmam", "custom") and set(mapping) == set(FAMILIES)
