@@ -19,10 +19,9 @@ from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
 from massarc.archive.stats import IncrementStatistic
 from massarc.schema import RunMeta, parse_metadata
+from massarc.simulate import simulate
 from massarc.validators.checks.boundary import BoundaryCheck
 from massarc.validators.registry import CheckContext
-
-simulate = pytest.importorskip("massarc.simulate").simulate
 
 TIMES = np.arange(300) * 0.5
 

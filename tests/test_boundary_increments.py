@@ -23,8 +23,7 @@ from massarc.archive.scan import scan
 from massarc.archive.stats import IncrementStatistic
 from massarc.archive.stats.increments import plan_axis
 from massarc.schema import parse_metadata
-
-simulate = pytest.importorskip("massarc.simulate").simulate
+from massarc.simulate import simulate
 
 
 def meta(sites: tuple[int, ...]):
