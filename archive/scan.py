@@ -36,7 +36,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from ._chunk_read import ChunkReader, MissingChunk
+from ._chunk_read import ChunkReader, CorruptChunk, MissingChunk
 from .progress import Progress
 from .reader import Chunk, ChunkRef, Run
 
@@ -205,7 +205,7 @@ def _work(
         block = reader.read(ref)
     except MissingChunk as exc:
         return _Done(index, fault=ChunkFault(ref, "missing", str(exc)))
-    except Exception as exc:  # any decode failure is a fault of this chunk only
+    except CorruptChunk as exc:  # a verdict on this chunk only; any other error propagates
         return _Done(index, fault=ChunkFault(ref, "corrupt", _one_line(exc)))
     partials: list[Any] = []
     for k, s in enumerate(stats):
