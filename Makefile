@@ -5,8 +5,11 @@ BIN    := $(VENV)/bin
 DEMO   := $(VENV)/.demo-installed
 TESTED := $(VENV)/.test-installed
 WORK   ?= build/demo
+# test-floor: a separate venv with every dependency at the floor pyproject.toml declares
+FLOOR        ?= build/floor
+FLOOR_PYTHON ?= python3.11
 
-.PHONY: demo test lint bench samples clean
+.PHONY: demo test test-floor lint bench samples clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -29,6 +32,25 @@ test: $(TESTED)
 	$(BIN)/ruff check .
 	$(BIN)/ruff format --check .
 	$(BIN)/python -m pytest -n 2 -q
+
+$(FLOOR)/constraints.txt: pyproject.toml tests/floor_constraints.py
+	mkdir -p $(FLOOR)
+	$(PYTHON) tests/floor_constraints.py pyproject.toml > $@
+
+$(FLOOR)/.installed: $(FLOOR)/constraints.txt
+	rm -rf $(FLOOR)/venv
+	$(FLOOR_PYTHON) -m venv $(FLOOR)/venv
+	$(FLOOR)/venv/bin/python -m pip install --quiet --upgrade pip
+	$(FLOOR)/venv/bin/python -m pip install --quiet -c $(FLOOR)/constraints.txt -e ".[test]"
+	$(FLOOR)/venv/bin/python -m pip freeze --exclude-editable > $(FLOOR)/installed.txt
+	touch $@
+
+## test-floor: lint and the whole suite with every dependency at its declared floor (slow;
+## see DEVELOPERS.md, "Tests"); the versions installed are listed in build/floor/installed.txt
+test-floor: $(FLOOR)/.installed
+	$(FLOOR)/venv/bin/ruff check .
+	$(FLOOR)/venv/bin/ruff format --check .
+	$(FLOOR)/venv/bin/python -m pytest -n 2 -q
 
 lint: $(TESTED)
 	$(BIN)/ruff check .

@@ -2,14 +2,18 @@
 
 For the archive's own layout (format v1: chunks of whole lattices, codecs bytes -> Blosc ->
 crc32c, a local directory store) a chunk file is read and decoded in the calling worker
-thread: crc32c with ``google_crc32c``, Blosc with ``numcodecs.blosc.decompress`` into a
-preallocated buffer (both release the GIL). This skips zarr-python's round trip through
-its event loop and the copy into a fresh output array, which costs about half of zarr's
-read time for 4 MiB chunks. Any other layout, codec chain or store goes through
-:meth:`Run.read_chunk` (zarr-python). Both paths give identical arrays (tested).
+thread: crc32c with ``google_crc32c`` (the library of zarr-python's own crc32c codec),
+Blosc with ``numcodecs.blosc.decompress`` into a preallocated buffer (both release the
+GIL). This skips zarr-python's round trip through its event loop and the copy into a fresh
+output array, which costs about half of zarr's read time for 4 MiB chunks. Any other
+layout, codec chain or store goes through :meth:`Run.read_chunk` (zarr-python). Both paths
+give identical arrays (tested).
 
 A chunk file that is absent raises :class:`MissingChunk`; one whose checksum does not
-match, or that does not decode to the chunk's size, raises :class:`CorruptChunk`.
+match, or that does not decode to the chunk's size, raises :class:`CorruptChunk`. These two
+are verdicts on the data; anything else (a file that cannot be opened, a bug) propagates
+as it is. Both libraries are imported with this module, so a missing one stops the import
+instead of turning every chunk into a corrupt one.
 """
 
 from __future__ import annotations
@@ -17,7 +21,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
+import google_crc32c
 import numpy as np
+from numcodecs import blosc
 from zarr.codecs import BloscCodec, BytesCodec, Crc32cCodec
 from zarr.storage import LocalStore
 
@@ -73,11 +79,22 @@ def _direct_plan(run: Run) -> _Direct | None:
     return _Direct(Path(store.root), f"{path}/" if path else "", dtype, chunks)
 
 
+def _first_line(exc: BaseException) -> str:
+    lines = str(exc).strip().splitlines()
+    return lines[0] if lines else type(exc).__name__
+
+
 class ChunkReader:
     """Reads the chunks of one run; thread-safe (no shared mutable state).
 
-    >>> reader = ChunkReader(run)            # doctest: +SKIP
-    >>> block = reader.read(run.chunk_refs()[0])  # doctest: +SKIP
+    >>> from massarc.archive import open_run
+    >>> run = open_run("samples/depot-ring.zarr")
+    >>> reader = ChunkReader(run)
+    >>> reader.direct
+    True
+    >>> block = reader.read(run.chunk_refs()[0])
+    >>> block.replica, block.start, block.mass.shape == (block.stop, *run.sites)
+    (0, 0, True)
     """
 
     def __init__(self, run: Run, *, direct: bool = True) -> None:
@@ -94,10 +111,10 @@ class ChunkReader:
         """Decode one chunk into a :class:`Chunk` of ``(stop - start, *lattice)``."""
         d = self._direct
         if d is None:
-            return self.run.read_chunk(ref)
-        import google_crc32c
-        from numcodecs import blosc
-
+            try:
+                return self.run.read_chunk(ref)
+            except (ValueError, RuntimeError) as exc:  # zarr's codecs: checksum, decoding
+                raise CorruptChunk(f"{ref.key}: {_first_line(exc)}") from exc
         k = ref.start // d.chunk_shape[1]
         key = f"{d.prefix}c/{ref.replica}/{k}/{self._tail}"
         try:

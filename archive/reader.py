@@ -1,10 +1,14 @@
 """Open runs lazily: metadata, shapes, and chunk-by-chunk access to the masses.
 
->>> run = open_run("samples/transit-ring.zarr")            # doctest: +SKIP
->>> run.meta.model.family, run.n_replicas, run.n_snapshots  # doctest: +SKIP
-('zrp', 4, 400)
->>> for block in run.chunks():                               # doctest: +SKIP
+>>> run = open_run("samples/depot-ring.zarr")
+>>> run.meta.model.family, run.n_replicas, run.n_snapshots
+('zrp', 4, 12288)
+>>> for block in run.chunks():
 ...     block.replica, block.start, block.stop, block.mass.shape
+(0, 0, 12288, (12288, 64))
+(1, 0, 12288, (12288, 64))
+(2, 0, 12288, (12288, 64))
+(3, 0, 12288, (12288, 64))
 
 Only the committed extent (the commit marker in the header) is visible: a run whose writer
 was killed reads as the consistent prefix it had committed.

@@ -44,7 +44,7 @@ from typing import Any, ClassVar, Generic, TypeVar
 
 import numpy as np
 
-from ._chunk_read import ChunkReader, MissingChunk
+from ._chunk_read import ChunkReader, CorruptChunk, MissingChunk
 from .progress import Progress
 from .reader import Chunk, ChunkRef, Run
 from .registry import Registry
@@ -260,7 +260,7 @@ def _work(
         block = reader.read(ref)
     except MissingChunk as exc:
         return _ChunkOutcome(index, fault=ChunkFault(ref, "missing", str(exc)))
-    except Exception as exc:  # any decode failure is a fault of this chunk only
+    except CorruptChunk as exc:  # a verdict on this chunk only; any other error propagates
         return _ChunkOutcome(index, fault=ChunkFault(ref, "corrupt", _one_line(exc)))
     partials: list[Any] = []
     for k, s in enumerate(stats):
@@ -378,6 +378,8 @@ def scan(
     >>> res = scan(run, {"snapshots": SnapshotStatistic(run)})
     >>> res.results["snapshots"].total.shape == (run.n_replicas, run.n_snapshots)
     True
+    >>> res.faults, res.chunks_read
+    ([], 4)
     """
     started = time.perf_counter()
     keys = list(statistics)

@@ -12,7 +12,9 @@ The layers underneath are importable too: ``massarc.schema``, ``massarc.archive`
 Names are resolved on first use, so ``import massarc`` (and the command line) start fast.
 
 >>> import massarc
->>> run = massarc.open_run("samples/dune-strip.zarr")  # doctest: +SKIP
+>>> run = massarc.open_run("samples/dune-strip.zarr")
+>>> run.meta.model.family, run.sites, run.complete
+('cmam', (64,), True)
 """
 
 from __future__ import annotations

@@ -148,7 +148,7 @@ def canonical_site_law(model: ZRPModel, sites: int, mass: int) -> np.ndarray:
     the total mass, for a ring (any drift) or a symmetric chain with walls.
 
     >>> law = canonical_site_law(ZRPModel(family="zrp", rate=1.0), sites=2, mass=2)
-    >>> [round(x, 6) for x in law]   # f = 1: (0,2), (1,1), (2,0) equally likely
+    >>> np.round(law, 6).tolist()   # f = 1: (0,2), (1,1), (2,0) equally likely
     [0.333333, 0.333333, 0.333333]
     """
     if sites < 1 or mass < 0:

@@ -18,11 +18,10 @@ import pytest
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
 from massarc.schema import RunMeta, parse_metadata
+from massarc.simulate import simulate
 from massarc.validators import CheckContext
 from massarc.validators.checks.boundary import BoundaryCheck
 from massarc.validators.checks.boundary.increments import IncrementStatistic
-
-simulate = pytest.importorskip("massarc.simulate").simulate
 
 TIMES = np.arange(300) * 0.5
 

@@ -21,9 +21,8 @@ import pytest
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
 from massarc.schema import parse_metadata
+from massarc.simulate import simulate
 from massarc.validators.checks.boundary.increments import IncrementStatistic, plan_axis
-
-simulate = pytest.importorskip("massarc.simulate").simulate
 
 
 def meta(sites: tuple[int, ...]):

@@ -37,8 +37,7 @@ def test_clean_runs_pass(tmp_path, sites, dtype, replicas) -> None:
 
 
 def test_clean_simulated_runs_pass(tmp_path) -> None:
-    simulate = pytest.importorskip("massarc.simulate").simulate
-    from massarc.simulate import snapshot_times
+    from massarc.simulate import simulate, snapshot_times
 
     for family, kw in (("zrp", {"b": 4.0}), ("cmam", {})):
         meta = make_meta(family, sites=(12,), **kw)

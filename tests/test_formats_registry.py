@@ -20,7 +20,7 @@ from massarc.archive.formats import (
     get_format,
     registry,
 )
-from massarc.archive.formats._scan import HAVE_NUMBA, scan_lines
+from massarc.archive.formats._scan import scan_lines
 from massarc.archive.formats.convert import split_options
 
 
@@ -129,7 +129,6 @@ _line = st.one_of(
 )
 
 
-@pytest.mark.skipif(not HAVE_NUMBA, reason="compares the numba loop with the Python path")
 @settings(max_examples=150, deadline=None)
 @given(lines=st.lists(_line, max_size=8), comma=st.booleans(), lead=st.integers(0, 2))
 def test_compiled_and_python_tokenisers_agree(lines, comma, lead):
@@ -147,7 +146,7 @@ def test_compiled_and_python_tokenisers_agree(lines, comma, lead):
     np.testing.assert_array_equal(a.lead[: a.n][data], b.lead[: b.n][data])
 
 
-@pytest.mark.parametrize("compiled", [True, False] if HAVE_NUMBA else [False])
+@pytest.mark.parametrize("compiled", [True, False])
 def test_tokeniser_matches_python_int_on_every_token(compiled):
     # reference: Python's int() on the whitespace-split tokens (common practice)
     rng = np.random.default_rng(5)

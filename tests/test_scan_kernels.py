@@ -9,9 +9,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 
-from massarc.archive.stats._kernels import HAVE_NUMBA, Plan, reduce_rows
+from massarc.archive.stats._kernels import Plan, reduce_rows
 
-BACKENDS = ["numpy", "numba"] if HAVE_NUMBA else ["numpy"]
+BACKENDS = ["numpy", "numba"]  # the `test` extra installs numba (through `fast`)
 FIELDS = ("total", "maximum", "minimum", "sum_sq", "occupied", "argmax")
 FLAGS = ("first_negative", "n_negative", "first_fractional", "n_fractional")
 FLAGS += ("first_sentinel", "n_sentinel", "hist_first")

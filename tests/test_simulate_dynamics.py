@@ -15,7 +15,7 @@ from test_simulate_exact import chisquare_merged
 
 from massarc.schema import RunMeta, parse_metadata
 from massarc.schema.laws import canonical_site_law
-from massarc.simulate import kernels, simulate, snapshot_times
+from massarc.simulate import simulate, snapshot_times
 
 
 def _meta(model: dict[str, Any], sites: list[int], boundary: str | list[str]) -> RunMeta:
@@ -271,7 +271,6 @@ def test_walls_suppress_moves_and_drift_pushes_mass_to_plus_x(family: str) -> No
     assert np.all(x[:, -1, -1, :].sum(axis=1) == 20)
 
 
-@pytest.mark.skipif(not kernels.HAVE_NUMBA, reason="numba is not installed")
 @pytest.mark.parametrize(
     ("model", "sites", "boundary"),
     [

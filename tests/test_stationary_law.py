@@ -27,11 +27,10 @@ from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
 from massarc.archive.stats import HistogramStatistic, SnapshotStatistic
 from massarc.schema import RunMeta, parse_metadata
+from massarc.simulate import simulate
 from massarc.validators import CheckContext
 from massarc.validators.checks.stationary_law import StationaryLawCheck
 from massarc.validators.checks.stationary_law.law_fit import fit_law
-
-simulate = pytest.importorskip("massarc.simulate").simulate
 
 
 def meta(sites=(32,), boundary="periodic", regime="stationary", family="zrp", **model) -> RunMeta:

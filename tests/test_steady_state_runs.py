@@ -20,11 +20,10 @@ import pytest
 from massarc.archive.scan import scan
 from massarc.archive.stats import SnapshotStatistic
 from massarc.schema import RunMeta, parse_metadata
+from massarc.simulate import simulate
 from massarc.validators import CheckContext
 from massarc.validators.analysis.window import stationary_window
 from massarc.validators.checks.steady_state import SteadyStateCheck
-
-simulate = pytest.importorskip("massarc.simulate").simulate
 
 L = 32
 MASS = 64  # density 2: condensed for the ZRP b = 4 (rho_c = 1/2) and the CMAM D = w

@@ -196,7 +196,11 @@ class _RunAudit:
         runnable = self.plan()
         res = None
         if self.statistics:
-            res = scan(self.run, self.statistics, progress=progress, workers=workers)
+            try:
+                res = scan(self.run, self.statistics, progress=progress, workers=workers)
+            except Exception as exc:  # the machine, not the data: a missing library, a lost disk
+                why = f"the pass over the chunks stopped: {_one_line(exc)}"
+                self.unavailable.update({key: why for key in self.statistics})
         for cls in runnable:
             started = time.perf_counter()
             out = self.check(cls, res)
