@@ -92,8 +92,8 @@ class ChunkReader:
     >>> reader = ChunkReader(run)
     >>> reader.direct
     True
-    >>> block = reader.read(run.chunk_refs()[0])
-    >>> block.replica, block.start, block.mass.shape == (block.stop, *run.sites)
+    >>> chunk = reader.read(run.chunk_refs()[0])
+    >>> chunk.replica, chunk.start, chunk.mass.shape == (chunk.stop, *run.sites)
     (0, 0, True)
     """
 

@@ -3,8 +3,8 @@
 >>> run = open_run("samples/depot-ring.zarr")
 >>> run.meta.model.family, run.n_replicas, run.n_snapshots
 ('zrp', 4, 12288)
->>> for block in run.chunks():
-...     block.replica, block.start, block.stop, block.mass.shape
+>>> for chunk in run.chunks():
+...     chunk.replica, chunk.start, chunk.stop, chunk.mass.shape
 (0, 0, 12288, (12288, 64))
 (1, 0, 12288, (12288, 64))
 (2, 0, 12288, (12288, 64))

@@ -13,7 +13,7 @@ are kept only until both neighbours of an edge are done.
 
 Contract of a statistic
 -----------------------
-``chunk(block)`` runs in worker threads: it must not mutate shared state and returns a
+``chunk(chunk)`` runs in worker threads: it must not mutate shared state and returns a
 partial result. ``merge(ref, partial)`` and ``pair(...)`` run in the calling thread, in
 any order of chunks. ``finish(faults)`` returns the reduced result; ``faults`` lists the
 chunks that could not be read, which the statistic must treat as missing data.
@@ -92,7 +92,7 @@ class Statistic(ABC):
         """Called once before the pass with all statistics of the pass (default: nothing)."""
 
     @abstractmethod
-    def chunk(self, block: Chunk) -> Any:
+    def chunk(self, chunk: Chunk) -> Any:
         """Reduce one decoded chunk (thread-safe, no shared state). Return a partial."""
 
     @abstractmethod
@@ -257,7 +257,7 @@ def _work(
     edges: bool,
 ) -> _ChunkOutcome:
     try:
-        block = reader.read(ref)
+        decoded = reader.read(ref)
     except MissingChunk as exc:
         return _ChunkOutcome(index, fault=ChunkFault(ref, "missing", str(exc)))
     except CorruptChunk as exc:  # a verdict on this chunk only; any other error propagates
@@ -268,12 +268,12 @@ def _work(
             partials.append(None)
             continue
         try:
-            partials.append(s.chunk(block))
+            partials.append(s.chunk(decoded))
         except Exception as exc:
             partials.append(_FailedPartial(exc))
-    done = _ChunkOutcome(index, partials=partials, nbytes=int(block.mass.nbytes))
-    if edges and len(block.mass):
-        done.first, done.last = block.mass[0].copy(), block.mass[-1].copy()
+    done = _ChunkOutcome(index, partials=partials, nbytes=int(decoded.mass.nbytes))
+    if edges and len(decoded.mass):
+        done.first, done.last = decoded.mass[0].copy(), decoded.mass[-1].copy()
     return done
 
 

@@ -72,7 +72,7 @@ KINDS = {
         "massarc.archive.stats",
         "from massarc.archive.scan import register_statistic",
         "from massarc.archive.scan import Statistic",
-        "    def chunk(self, block):\n        return len(block.mass)\n"
+        "    def chunk(self, chunk):\n        return len(chunk.mass)\n"
         "    def merge(self, ref, partial):\n        pass\n"
         "    def finish(self, faults):\n        return 0\n",
     ),
@@ -349,7 +349,7 @@ def test_a_statistic_with_pairs_must_define_pair(plugins):
         name = "test-pairless"
         pairs = True
 
-        def chunk(self, block):
+        def chunk(self, chunk):
             return None
 
         def merge(self, ref, partial):

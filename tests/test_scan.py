@@ -26,11 +26,11 @@ class _Pairs(Statistic):
         self.seen: dict[tuple[int, int], float] = {}
         self.delay = options.get("delay", 0.0)
 
-    def chunk(self, block):
+    def chunk(self, chunk):
         if self.delay:  # later chunks finish first: out-of-order completion
-            time.sleep(self.delay * (1 + (block.start * 7919) % 5))
-        d = np.diff(block.mass.reshape(len(block.mass), -1).astype(np.int64), axis=0)
-        return [(block.start + i + 1, float(np.abs(d[i]).sum())) for i in range(len(d))]
+            time.sleep(self.delay * (1 + (chunk.start * 7919) % 5))
+        d = np.diff(chunk.mass.reshape(len(chunk.mass), -1).astype(np.int64), axis=0)
+        return [(chunk.start + i + 1, float(np.abs(d[i]).sum())) for i in range(len(d))]
 
     def merge(self, ref, partial):
         for index, v in partial:
@@ -138,8 +138,8 @@ def test_faults_are_named_and_isolated(tmp_path, direct, how, kind) -> None:
 class _Boom(Statistic):
     name = "test-boom"
 
-    def chunk(self, block):
-        if block.start >= 20:
+    def chunk(self, chunk):
+        if chunk.start >= 20:
             raise RuntimeError("kaboom\nsecond line")
         return None
 
@@ -181,7 +181,7 @@ class _Concurrency(Statistic):
         self.lock = threading.Lock()
         self.started = self.merged = self.peak = 0
 
-    def chunk(self, block):
+    def chunk(self, chunk):
         with self.lock:
             self.started += 1
             self.peak = max(self.peak, self.started - self.merged)

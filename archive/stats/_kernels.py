@@ -16,7 +16,7 @@ Semantics, shared by both paths:
 * the histogram puts negative values in bin 0 and values >= ``top`` in bin ``top``.
 
 When the ``snapshots`` and ``histogram`` statistics both run, they share one :class:`Plan`
-and the reduction of a block is computed once per worker thread (:func:`reduce_block`).
+and the reduction of a chunk is computed once per worker thread (:func:`reduce_chunk`).
 """
 
 from __future__ import annotations
@@ -33,7 +33,7 @@ try:  # numba is the optional `fast` extra
 except ImportError:  # pragma: no cover - exercised only without numba
     njit = None
 
-__all__ = ["HAVE_NUMBA", "Plan", "Reduction", "reduce_block", "reduce_rows", "use_numba"]
+__all__ = ["HAVE_NUMBA", "Plan", "Reduction", "reduce_chunk", "reduce_rows", "use_numba"]
 
 HAVE_NUMBA = njit is not None
 _I64_LIMIT = float(2**63)
@@ -304,15 +304,15 @@ def reduce_rows(x: np.ndarray, start: int, plan: Plan, *, backend: str | None = 
 _MEMO = threading.local()
 
 
-def reduce_block(block: object, plan: Plan) -> Reduction:
-    """:func:`reduce_rows` of ``block.mass``, computed once per (block, plan) and thread.
+def reduce_chunk(chunk: object, plan: Plan) -> Reduction:
+    """:func:`reduce_rows` of ``chunk.mass``, computed once per (chunk, plan) and thread.
 
-    The scan engine hands one block to every statistic in the same worker thread, so two
+    The scan engine hands one chunk to every statistic in the same worker thread, so two
     statistics sharing ``plan`` cost one pass over the chunk.
     """
-    ref = getattr(_MEMO, "block", None)
-    if ref is not None and ref() is block and _MEMO.plan is plan:
+    ref = getattr(_MEMO, "chunk", None)
+    if ref is not None and ref() is chunk and _MEMO.plan is plan:
         return _MEMO.result
-    result = reduce_rows(block.mass, block.start, plan)
-    _MEMO.block, _MEMO.plan, _MEMO.result = weakref.ref(block), plan, result
+    result = reduce_rows(chunk.mass, chunk.start, plan)
+    _MEMO.chunk, _MEMO.plan, _MEMO.result = weakref.ref(chunk), plan, result
     return result

@@ -9,8 +9,8 @@ once. The loop is shared with the ``snapshots`` statistic when both run in one p
 >>> from types import SimpleNamespace
 >>> run = SimpleNamespace(n_replicas=1, n_snapshots=2, dtype=np.dtype("uint8"))
 >>> stat = HistogramStatistic(run, bins=4, blocks=1)
->>> block = Chunk(0, 0, 2, np.array([[1, 0, 3], [2, 9, 0]], np.uint8))
->>> stat.merge(block, stat.chunk(block))
+>>> chunk = Chunk(0, 0, 2, np.array([[1, 0, 3], [2, 9, 0]], np.uint8))
+>>> stat.merge(chunk, stat.chunk(chunk))
 >>> stat.finish([]).counts.tolist()   # masses 0, 1, 2 and >= 3
 [[[2, 1, 1, 2]]]
 """
@@ -24,7 +24,7 @@ import numpy as np
 
 from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic
-from ._kernels import Plan, reduce_block
+from ._kernels import Plan, reduce_chunk
 
 __all__ = ["HistogramStatistic", "HistogramStats", "block_edges"]
 
@@ -78,8 +78,8 @@ class HistogramStatistic(Statistic):
         #: True once a ``snapshots`` statistic shares its loop (see SnapshotStatistic.prepare).
         self.fused = False
 
-    def chunk(self, block: Chunk) -> Any:
-        red = reduce_block(block, self.plan)
+    def chunk(self, chunk: Chunk) -> Any:
+        red = reduce_chunk(chunk, self.plan)
         return red.hist_first, red.hist
 
     def merge(self, ref: ChunkRef, partial: Any) -> None:

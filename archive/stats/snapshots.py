@@ -10,8 +10,8 @@ located (see :mod:`massarc.archive.stats._kernels` for the exact semantics). Whe
 >>> from types import SimpleNamespace
 >>> run = SimpleNamespace(n_replicas=1, n_snapshots=2, dtype=np.dtype("uint8"))
 >>> stat = SnapshotStatistic(run)
->>> block = Chunk(0, 0, 2, np.array([[1, 0, 3], [2, 2, 0]], np.uint8))
->>> stat.merge(block, stat.chunk(block))
+>>> chunk = Chunk(0, 0, 2, np.array([[1, 0, 3], [2, 2, 0]], np.uint8))
+>>> stat.merge(chunk, stat.chunk(chunk))
 >>> stat.finish([]).total.tolist()
 [[4, 4]]
 """
@@ -26,7 +26,7 @@ import numpy as np
 from ..layout import sentinel
 from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic
-from ._kernels import Plan, reduce_block
+from ._kernels import Plan, reduce_chunk
 
 __all__ = ["SnapshotStatistic", "SnapshotStats"]
 
@@ -90,15 +90,15 @@ class SnapshotStatistic(Statistic):
                 peer.plan, peer.fused = self.plan, True
                 return
 
-    def chunk(self, block: Chunk) -> Any:
-        red = reduce_block(block, self.plan)
-        sites = int(np.prod(block.mass.shape[1:]))
+    def chunk(self, chunk: Chunk) -> Any:
+        red = reduce_chunk(chunk, self.plan)
+        volume = int(np.prod(chunk.mass.shape[1:]))
 
         def loc(flat: int) -> Location | None:
             if flat < 0:
                 return None
-            row, site = divmod(flat, sites)
-            return (block.replica, block.start + row, site)
+            row, site = divmod(flat, volume)
+            return (chunk.replica, chunk.start + row, site)
 
         return {
             "moments": (
