@@ -49,7 +49,8 @@ def bootstrap_intervals(
     def mean_and_var(picked: np.ndarray, axis: int = -1) -> np.ndarray:
         # picked: resampled replica indices (..., replicas); values (..., replicas, probes)
         sample = x[np.moveaxis(picked, axis, -1).astype(np.int64)]
-        return np.stack([sample.mean(axis=-2), sample.var(axis=-2, ddof=1)])
+        out = np.stack([sample.mean(axis=-2), sample.var(axis=-2, ddof=1)])  # (2, ..., probes)
+        return np.moveaxis(out, -1, 1)  # (2, probes, ...): scipy wants resamples last
 
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore")  # constant columns give degenerate intervals
