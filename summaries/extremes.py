@@ -34,11 +34,13 @@ p-value must account for the estimated parameters; two ways:
 
 >>> import numpy as np
 >>> from scipy import stats
->>> x = stats.gumbel_r.rvs(loc=100.0, scale=5.0, size=2000, random_state=1)
+>>> x = stats.gumbel_r.rvs(loc=100.0, scale=5.0, size=2000, random_state=2)
 >>> fits = fit_extremes(x)
 >>> g = fits["laws"]["gumbel"]
->>> round(g["mean"], 0), round(g["var"] ** 0.5, 0)   # 100 + 0.5772 x 5, pi 5 / sqrt 6
-(103.0, 6.0)
+>>> [round(v) for v in g["params_mass"]]            # loc and scale in mass units
+[100, 5]
+>>> round(g["mean"]), round(g["var"] ** 0.5)        # 100 + 0.5772 x 5, pi 5 / sqrt 6
+(103, 6)
 """
 
 from __future__ import annotations
