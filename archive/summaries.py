@@ -18,6 +18,7 @@ Writing never touches ``mass``, ``time`` or the run's header.
 
 from __future__ import annotations
 
+import asyncio
 import math
 import os
 import shutil
@@ -85,9 +86,13 @@ def _run_dir(run: Run) -> Path | None:
 
 
 def _fill(group: zarr.Group, arrays: Mapping[str, StoredArray], attrs: Mapping[str, Any]) -> None:
-    for name, item in arrays.items():
+    """Create and write every array (concurrently, through zarr's asynchronous API), then
+    the group attribute."""
+    from zarr.core.sync import sync
+
+    async def one(name: str, item: StoredArray) -> None:
         data = np.ascontiguousarray(item.data)
-        arr = group.create_array(
+        arr = await group._async_group.create_array(
             name,
             shape=data.shape,
             dtype=data.dtype,
@@ -97,7 +102,12 @@ def _fill(group: zarr.Group, arrays: Mapping[str, StoredArray], attrs: Mapping[s
             chunk_key_encoding={"name": "default", "separator": "."},  # no nested folders
         )
         if data.size:
-            arr[...] = data
+            await arr.setitem(Ellipsis, data)
+
+    async def every() -> None:
+        await asyncio.gather(*(one(name, item) for name, item in arrays.items()))
+
+    sync(every())
     group.update_attributes({ATTRIBUTE_KEY: plain({"format": SUMMARIES_KIND, **attrs})})
 
 

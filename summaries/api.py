@@ -27,12 +27,14 @@ __all__ = ["SummaryOutcome", "open_for_summaries", "summarize", "summarize_run"]
 
 @dataclass(frozen=True)
 class SummaryOutcome:
-    """One run's summaries: as stored now, and whether they were computed this time."""
+    """One run's summaries: as stored now, whether they were computed this time, the
+    seconds it took and, when computed, the seconds of the single pass alone."""
 
     run: Run
     summaries: Summaries
     computed: bool
     seconds: float
+    pass_seconds: float | None = None
 
     @property
     def findings(self) -> dict[str, Any]:
@@ -96,7 +98,7 @@ def summarize_run(
     write_summaries(run, arrays, attrs)
     fresh = run.summaries
     assert fresh is not None
-    return SummaryOutcome(run, fresh, True, time.perf_counter() - started)
+    return SummaryOutcome(run, fresh, True, time.perf_counter() - started, col.seconds)
 
 
 def summarize(

@@ -120,9 +120,14 @@ def build_summaries(
     fit_kw = {"points": opts.fit_points, "min_decades": opts.min_decades,
               "resamples": opts.resamples, "seed": opts.seed}  # fmt: skip
 
+    initial = meta.run.initial.kind if meta.run.initial is not None else None
+    settled = initial in ("steady-state", "previous-run")
+
     def growth(values: np.ndarray) -> dict[str, Any]:
         fit = fit_growth(times, values, t0, t1, expected=expected, **fit_kw)
-        return {**fit, "range_rule": range_rule}
+        if settled:  # a slope is still fitted, but there is no coarsening to measure
+            fit["note"] = f"the run starts from {initial}: there is no growth to measure"
+        return {**fit, "range_rule": range_rule, "steady_start": settled}
 
     mean, var = over_replicas(snap.maximum)
     exponents = {"largest_mass": growth(snap.maximum.astype(np.float64)),

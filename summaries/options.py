@@ -69,7 +69,7 @@ class SummaryOptions:
                            "fitted on", low=3)  # fmt: skip
     min_decades: float = _opt(1.0, float, "a fitting range shorter than this many decades "
                               "is flagged too short", low=0.0)  # fmt: skip
-    extreme_max: int = _opt(1000, int, "largest sample of the extreme-value fits (thinned "
+    extreme_max: int = _opt(500, int, "largest sample of the extreme-value fits (thinned "
                             "further beyond)", low=20)  # fmt: skip
     gof: str = _opt("half-sample", str, "goodness-of-fit p-value: KS with parameters fitted "
                     "on a random half, or a parametric bootstrap (slow)",

@@ -3,7 +3,8 @@
 The table has one row per run with the model (family, b or w, L, density), the window, the
 condensate fraction measured against 1 - rho_c / rho, and the growth exponents of the
 typical mass, the largest mass and the coarsening length next to the expected 1/z (a
-``?`` marks a fitting range too short to mean anything). It reads only the group
+``?`` marks a fitting range too short to mean anything; a run started in the steady state
+shows ``-``: it has no growth to measure). It reads only the group
 attributes, so a sweep of many runs prints at once.
 
 Export: ``csv`` writes ``DIR/<run>/<array>.csv`` in long form (one column per dimension,
@@ -40,7 +41,7 @@ def _num(value: Any, digits: int = 3) -> str:
 
 
 def _exponent(fit: dict[str, Any]) -> str:
-    if fit.get("exponent") is None:
+    if fit.get("exponent") is None or fit.get("steady_start"):
         return "-"
     text = f"{fit['exponent']:.3f}"
     if fit.get("stderr") is not None:
@@ -113,7 +114,7 @@ def _table(outcomes: Sequence[SummaryOutcome], file: IO[str]) -> None:
     fresh = sum(o.computed for o in outcomes)
     console.print(
         f"{len(outcomes)} run(s): {fresh} summarised, {len(outcomes) - fresh} already up to "
-        "date; ? = fitting range too short to mean anything",
+        "date; ? = fitting range too short to mean anything; - = none, or a steady start",
         highlight=False,
     )
 

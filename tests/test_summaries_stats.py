@@ -20,6 +20,7 @@ from massarc.archive.stats.correlation import two_point
 from massarc.schema import parse_metadata
 from massarc.simulate import sample_steady_state
 from massarc.summaries import summarize
+from massarc.summaries.build import first_zero
 
 
 def _write(path: Path, data: np.ndarray, boundary: str | list[str] = "periodic") -> Path:
@@ -165,3 +166,22 @@ def test_zrp_steady_state_is_exchangeable_in_the_stored_correlation(tmp_path):
     want = two_point(x[:40].reshape(4, 10, 12)[:, [2, 9]].reshape(8, 12), (True,))["along"][0]
     np.testing.assert_allclose(res.along[0], want.reshape(4, 2, 12).mean(axis=0), atol=1e-12)
     assert res.replicas.tolist() == [4, 4]
+
+
+def test_a_2d_run_stores_the_radial_and_axis_correlations(tmp_path):
+    data = multinomial_run(2, 12, (4, 6), mass=48, seed=8)
+    path = _write(tmp_path / "box.zarr", data, boundary=["periodic", "reflecting"])
+    summarize(path, {"probes": 3, "resamples": 19, "zero_crossing": True})
+    s = open_run(path).summaries
+    probes = s.array("probe_snapshot")
+    rows = data[:, probes].reshape(-1, 4, 6)
+    want = two_point(rows, (True, False))  # checked against direct sums above
+    np.testing.assert_allclose(s.array("correlation_y"), want["along"][0].reshape(2, 3, 4).mean(0))
+    np.testing.assert_allclose(s.array("correlation_x"), want["along"][1].reshape(2, 3, 6).mean(0))
+    np.testing.assert_allclose(s.array("correlation"), want["radial"].reshape(2, 3, -1).mean(0))
+    zero = s.array("correlation_zero")
+    assert zero.shape == (3,)
+    np.testing.assert_array_equal(zero, first_zero(want["radial"].reshape(2, 3, -1).mean(0)))
+    # uncorrelated data: sum G = 0 forces early zero crossings, flagged as meaningless
+    flags = s.attrs("correlation_zero")["meaningless"]
+    assert flags == [bool(not np.isfinite(v) or v <= 2) for v in zero] and any(flags)

@@ -148,3 +148,13 @@ def test_sigkill_while_writing_leaves_old_or_new_summaries_never_a_mix(tmp_path)
             np.testing.assert_array_equal(s.array(name), want)
     summarize(path, {"probes": 4, "resamples": 19}, force=True)  # the next write tidies up
     assert [p.name for p in path.iterdir() if p.name.startswith("summaries")] == ["summaries"]
+
+
+def test_summaries_of_a_run_in_memory_are_replaced_in_place():
+    location = "memory://summaries-store-test"
+    with create_run(location, make_meta("zrp", sites=(10,), b=4.0), overwrite=True) as w:
+        w.append(np.arange(24.0), multinomial_run(3, 24, (10,), mass=30, seed=3))
+    summarize(location, QUICK)
+    summarize(location, {**QUICK, "probes": 3})
+    s = open_run(location).summaries
+    assert s.provenance["options"]["probes"] == 3 and len(s.array("probe_snapshot")) == 3
