@@ -1,8 +1,9 @@
 """``massarc summarize`` against plain zarr-python decoding of the same chunks.
 
-    .venv/bin/python bench/bench_summarize.py            # 0.25 and 1 GiB runs (shared with
-                                                         # bench_check.py; built on first use)
+    .venv/bin/python bench/bench_summarize.py            # 0.25, 1 and 4 GiB runs (built on
+                                                         # first use; shared with bench_check)
     .venv/bin/python bench/bench_summarize.py --quick    # 16 and 64 MiB, for a smoke test
+    .venv/bin/python bench/bench_summarize.py --sizes 1  # chosen sizes, in GiB
 
 Data: the runs of ``bench_check.py`` (condensed totally asymmetric ZRP, b = 4, 2000 sites,
 density 0.6, 4 replicas from the exact steady state, uint16), cached under
@@ -28,12 +29,10 @@ from __future__ import annotations
 import argparse
 import json
 import statistics
-import subprocess
-import sys
 import time
 from pathlib import Path
 
-from bench_check import OUT, _peak_rss, build, zarr_pass
+from bench_check import OUT, _memory, build, report_child, zarr_pass
 
 
 def summarize_once(path: Path, workers: int) -> float:
@@ -48,33 +47,18 @@ def summarize_once(path: Path, workers: int) -> float:
 
 def child(kind: str, path: Path, workers: int) -> None:
     """One pass in this (fresh) process; print seconds and peak memory as JSON."""
-    import psutil
-
     from massarc import summaries, validators  # noqa: F401 - the imports' share of memory
 
-    base = psutil.Process().memory_info().rss
-    t0 = time.perf_counter()
     if kind == "zarr":
-        zarr_pass(path, workers)
+        report_child(lambda: zarr_pass(path, workers))
     else:
-        summarize_once(path, workers)
-    seconds = time.perf_counter() - t0
-    print(json.dumps({"seconds": seconds, "rss_after_imports": base, "peak_rss": _peak_rss()}))
-
-
-def _memory(kind: str, path: Path, workers: int) -> dict:
-    out = subprocess.run(
-        [sys.executable, __file__, "--child", kind, str(path), "--workers", str(workers)],
-        capture_output=True,
-        text=True,
-        check=True,
-    )
-    return json.loads(out.stdout.strip().splitlines()[-1])
+        report_child(lambda: summarize_once(path, workers))
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--quick", action="store_true", help="16 and 64 MiB instead of 0.25, 1 GiB")
+    ap.add_argument("--quick", action="store_true", help="16 and 64 MiB instead of 0.25, 1, 4 GiB")
+    ap.add_argument("--sizes", type=str, default="0.25,1,4", help="run sizes in GiB")
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--workers", type=int, default=None)
     ap.add_argument("--child", nargs=2, metavar=("KIND", "PATH"), help=argparse.SUPPRESS)
@@ -87,7 +71,8 @@ def main() -> None:
         child(args.child[0], Path(args.child[1]), workers)
         return
     rows = []
-    for gib in [1 / 64, 1 / 16] if args.quick else [0.25, 1.0]:
+    sizes = [1 / 64, 1 / 16] if args.quick else [float(x) for x in args.sizes.split(",")]
+    for gib in sizes:
         path = build(gib)
         run = open_run(path)
         for f in path.rglob("*"):  # page cache, numba kernels, imports: outside the timings
@@ -116,7 +101,7 @@ def main() -> None:
                 "all_seconds": times,
                 "ratio_to_zarr": {k: v / best["zarr"] for k, v in best.items()},
                 "median_ratio_to_zarr": {k: v / med["zarr"] for k, v in med.items()},
-                "memory": {k: _memory(k, path, workers) for k in ("zarr", "summarize")},
+                "memory": {k: _memory(k, path, workers, __file__) for k in ("zarr", "summarize")},
                 "window": s.provenance["window"],
                 "extremes_best": s.provenance["extremes"]["best"],
             }

@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
-from typing import Any
 
 import click
 
@@ -26,21 +25,11 @@ from massarc.summaries import (
     summarize,
 )
 
-from ._common import bad_input, die, key_values, progress_bar, rendering_option
+from ._common import bad_input, command_class, die, key_values, progress_bar, rendering_option
 
 __all__ = ["command"]
 
 _NAME = "summarize"
-
-
-class _OneLineErrors(click.Command):
-    """Usage errors as one line on stderr with status 2, like every other bad input."""
-
-    def make_context(self, info_name: Any, args: Any, parent: Any = None, **extra: Any) -> Any:
-        try:
-            return super().make_context(info_name, args, parent=parent, **extra)
-        except click.UsageError as exc:
-            die(_NAME, exc.format_message())
 
 
 def _options(sets: tuple[str, ...]) -> SummaryOptions:
@@ -50,7 +39,7 @@ def _options(sets: tuple[str, ...]) -> SummaryOptions:
     return SummaryOptions.from_mapping(values)
 
 
-@click.command(_NAME, cls=_OneLineErrors)
+@click.command(_NAME, cls=command_class(_NAME))
 @click.argument("runs", nargs=-1, metavar="RUN_OR_COLLECTION...")
 @rendering_option(RENDERINGS, "How to print. table: one row per run; json: for scripts.")
 @click.option(
