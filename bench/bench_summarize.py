@@ -18,7 +18,10 @@ JSON):
   pass (snapshots, histogram, condensates, correlation at 64 probes), the stationary
   window, replica statistics and bootstrap intervals, growth exponents, extreme-value
   fits, the condensate against theory, and the atomic write of the group;
-* ``pass``: the single pass inside ``summarize`` alone.
+* ``pass``: the single pass inside ``summarize`` alone;
+* ``audit``: ``massarc check``'s default audit of the same run (``bench_check.audit_pass``),
+  for context: on a loaded machine every ratio to zarr grows, and summarize against the
+  audit says how it compares with what the audit's own target was measured on.
 
 Peak memory (VmHWM) of ``zarr`` and ``summarize`` in fresh subprocesses, next to the
 resident set after the imports. Writes ``bench/out/summarize.json``.
@@ -32,7 +35,7 @@ import statistics
 import time
 from pathlib import Path
 
-from bench_check import OUT, _memory, build, report_child, zarr_pass
+from bench_check import OUT, _memory, audit_pass, build, report_child, zarr_pass
 
 
 def summarize_once(path: Path, workers: int) -> float:
@@ -79,11 +82,14 @@ def main() -> None:
             if f.is_file():
                 f.read_bytes()
         summarize_once(path, workers)
-        times: dict[str, list[float]] = {"zarr": [], "summarize": [], "pass": []}
+        times: dict[str, list[float]] = {"zarr": [], "summarize": [], "pass": [], "audit": []}
         for _ in range(args.repeat):
             t0 = time.perf_counter()
             assert zarr_pass(path, workers) == run.nbytes
             times["zarr"].append(time.perf_counter() - t0)
+            t0 = time.perf_counter()
+            audit_pass(path, workers, None)
+            times["audit"].append(time.perf_counter() - t0)
             t0 = time.perf_counter()
             times["pass"].append(summarize_once(path, workers))
             times["summarize"].append(time.perf_counter() - t0)
@@ -111,7 +117,7 @@ def main() -> None:
     print(f"\nworkers: {workers}; best of {args.repeat}; ratio = time / zarr baseline time")
     print(f"{'size':>8} {'what':>10} {'seconds':>8} {'ratio':>6} {'median':>7} {'peak RSS MB':>12}")
     for row in rows:
-        for kind in ("zarr", "pass", "summarize"):
+        for kind in ("zarr", "pass", "summarize", "audit"):
             m = row["memory"].get(kind)
             peak = f"{m['peak_rss'] / 1e6:12.0f}" if m else f"{'':>12}"
             print(
@@ -119,7 +125,11 @@ def main() -> None:
                 f"{row['ratio_to_zarr'][kind]:6.2f} {row['median_ratio_to_zarr'][kind]:7.2f} {peak}"
             )
         imports = row["memory"]["summarize"]["rss_after_imports"] / 1e6
-        print(f"  after imports: {imports:.0f} MB; window: {row['window']['reason']}")
+        versus = row["seconds"]["summarize"] / row["seconds"]["audit"]
+        print(
+            f"  summarize / audit: {versus:.2f}; after imports: {imports:.0f} MB; "
+            f"window: {row['window']['reason']}"
+        )
     print(f"wrote {OUT / 'summarize.json'}")
 
 

@@ -116,8 +116,9 @@ def fit_law(
     log-likelihood; ``((), inf)`` when there is none.
 
     Gumbel: ``gumbel_r.fit``. GEV: ``genextreme.fit`` from ``start`` when given, else from
-    the Gumbel fit (c = 0) and from c = 0.3, keeping the best (the GEV likelihood has
-    local maxima, and scipy's own starting guess often lands in one). Frechet and
+    the Gumbel fit (c = 0), and from c = 0.3 should that fail (the GEV likelihood has
+    local maxima: scipy's own starting guess lands in one for half of Gumbel and most
+    Frechet samples; the Gumbel start did not in 30 trials over five laws). Frechet and
     Weibull: the GEV maximum ``start`` mapped by :func:`from_gev` when its shape has their
     sign; otherwise their maximum lies at the Gumbel limit and ``((), inf)`` is returned.
     """
@@ -133,10 +134,12 @@ def fit_law(
         else:
             if start is not None:
                 starts = [tuple(start)]
-            else:  # from the Gumbel fit (c = 0), and from c = 0.3 (xi = -0.3)
+            else:  # from the Gumbel fit (c = 0); from c = 0.3 (xi = -0.3) if that fails
                 loc, scale = stats.gumbel_r.fit(z)
                 starts = [(0.0, float(loc), float(scale)), (0.3, 0.0, 1.0)]
             for c, loc, scale in starts:
+                if tries and math.isfinite(_nll(dist, z, tries[-1])):
+                    break
                 tries.append(tuple(float(v) for v in dist.fit(z, c, loc=loc, scale=scale)))
     best: tuple[tuple[float, ...], float] = ((), math.inf)
     for params in tries:

@@ -8,7 +8,8 @@ shows ``-``: it has no growth to measure). It reads only the group
 attributes, so a sweep of many runs prints at once.
 
 Export: ``csv`` writes ``DIR/<run>/<array>.csv`` in long form (one column per dimension,
-``time`` added next to a ``time`` index, then ``value``) and ``DIR/runs.csv`` (the table);
+the time dimension as ``snapshot`` followed by its ``time``, then ``value``) and
+``DIR/runs.csv`` (the table);
 ``json`` writes ``DIR/<run>.json`` with every array (dimensions, units, values,
 attributes) and the provenance.
 """
@@ -147,12 +148,20 @@ def _stems(outcomes: Sequence[SummaryOutcome]) -> list[str]:
 
 
 def _long_rows(data: np.ndarray, dims: tuple[str, ...], times: np.ndarray) -> tuple[list, list]:
-    head = [*dims, *(["time"] if "time" in dims else []), "value"]
-    rows = []
-    for index in np.ndindex(*data.shape):
-        extra = [float(times[index[dims.index("time")]])] if "time" in dims else []
-        rows.append([*index, *extra, plain(data[index])])
-    return head, rows
+    """Long form: one row per element, its indices (the ``time`` index as ``snapshot``,
+    followed by its ``time``) and its value (NaN as an empty cell)."""
+    index = np.indices(data.shape).reshape(data.ndim, -1)
+    cols: list[np.ndarray] = list(index)
+    head = ["snapshot" if d == "time" else d for d in dims]
+    if "time" in dims:
+        head.append("time")
+        cols.append(times[index[dims.index("time")]])
+    head.append("value")
+    values = data.reshape(-1).astype(object)
+    if data.dtype.kind == "f":
+        values[~np.isfinite(data.reshape(-1))] = ""
+    cols.append(values)
+    return head, list(zip(*(c.tolist() for c in cols), strict=True))
 
 
 def export_summaries(outcomes: Sequence[SummaryOutcome], kind: str, directory: Path) -> list[Path]:
