@@ -130,3 +130,15 @@ def test_python_api_returns_the_stored_observables_with_provenance(sweep):
     assert done.findings["exponents"]["typical_mass"]["exponent"] == pytest.approx(
         s.attrs("typical_mass_mean")["growth"]["exponent"]
     )
+
+
+def test_info_mentions_stored_summaries(sweep):
+    path = sweep / "dune-strip.zarr"
+    assert "summaries" not in _info(path)
+    _invoke(str(path), *QUICK)
+    line = next(x for x in _info(path).splitlines() if x.strip().startswith("summaries"))
+    assert "18 arrays by massarc" in line and "window" in line
+
+
+def _info(path: Path) -> str:
+    return CliRunner().invoke(cli, ["info", str(path)], catch_exceptions=False).output
