@@ -158,3 +158,16 @@ def test_summaries_of_a_run_in_memory_are_replaced_in_place():
     summarize(location, {**QUICK, "probes": 3})
     s = open_run(location).summaries
     assert s.provenance["options"]["probes"] == 3 and len(s.array("probe_snapshot")) == 3
+
+
+def test_a_damaged_chunk_stops_the_summaries_with_its_name(tmp_path):
+    path = _run(tmp_path / "r.zarr")
+    chunk = sorted((path / "mass" / "c").rglob("*"))[-1]
+    assert chunk.is_file()
+    chunk.write_bytes(chunk.read_bytes()[:-7] + b"garbage")
+    with pytest.raises(
+        ArchiveError,
+        match=r"r\.zarr: chunk mass/c/2/2/0 \(replica 2, snapshots 16\.\.23\) is corrupt",
+    ):
+        summarize(path, QUICK)
+    assert not (path / "summaries").exists()
