@@ -77,4 +77,13 @@ def run_facts(run: Run) -> dict[str, Any]:
         )
     if run.events is not None:
         facts["events"] = int(np.prod(run.events["time"].shape))
+    stored = run.summaries
+    if stored is not None:
+        prov = stored.provenance
+        facts["summaries"] = {
+            "arrays": len(stored),
+            "massarc_version": prov.get("massarc_version"),
+            "created": prov.get("created"),
+            "window": (prov.get("window") or {}).get("rule"),
+        }
     return facts

@@ -176,6 +176,15 @@ class Run:
         g = self.group.get(EVENTS)
         return g if isinstance(g, zarr.Group) else None
 
+    @property
+    def summaries(self) -> Any:
+        """The stored observables (:class:`massarc.archive.summaries.Summaries`), or None
+        when the run has not been summarised (``massarc summarize``). Read afresh on each
+        access."""
+        from .summaries import read_summaries
+
+        return read_summaries(self)
+
     # -- reading -------------------------------------------------------------------------
 
     def chunk_refs(self) -> list[ChunkRef]:

@@ -33,6 +33,7 @@ import statistics
 import subprocess
 import sys
 import time
+from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
@@ -124,20 +125,26 @@ def _warm(path: Path, workers: int) -> None:
     audit_pass(path, workers, None)
 
 
-def child(kind: str, path: Path, workers: int) -> None:
-    """One audit in this (fresh) process; print seconds and peak memory as JSON."""
+def report_child(work: Callable[[], object]) -> None:
+    """Time ``work()`` in this (fresh) process, after the caller's imports; print seconds,
+    the resident set after the imports and the peak as JSON."""
     import psutil
-
-    import massarc.validators  # noqa: F401 - the imports' share of memory
 
     base = psutil.Process().memory_info().rss
     t0 = time.perf_counter()
-    if kind == "zarr":
-        zarr_pass(path, workers)
-    else:
-        audit_pass(path, workers, BASIC if kind == "basic" else None)
+    work()
     seconds = time.perf_counter() - t0
     print(json.dumps({"seconds": seconds, "rss_after_imports": base, "peak_rss": _peak_rss()}))
+
+
+def child(kind: str, path: Path, workers: int) -> None:
+    """One audit in this (fresh) process; print seconds and peak memory as JSON."""
+    import massarc.validators  # noqa: F401 - the imports' share of memory
+
+    if kind == "zarr":
+        report_child(lambda: zarr_pass(path, workers))
+    else:
+        report_child(lambda: audit_pass(path, workers, BASIC if kind == "basic" else None))
 
 
 def _peak_rss() -> int:
@@ -152,9 +159,10 @@ def _peak_rss() -> int:
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
 
 
-def _memory(kind: str, path: Path, workers: int) -> dict:
+def _memory(kind: str, path: Path, workers: int, script: str = __file__) -> dict:
+    """Seconds and peak memory of pass ``kind`` run by ``script --child`` in a fresh process."""
     out = subprocess.run(
-        [sys.executable, __file__, "--child", kind, str(path), "--workers", str(workers)],
+        [sys.executable, script, "--child", kind, str(path), "--workers", str(workers)],
         capture_output=True,
         text=True,
         check=True,

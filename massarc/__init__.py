@@ -5,10 +5,13 @@ The public API is small:
 * :func:`open_run`, :func:`open_runs` read a run (or a collection) lazily;
 * :func:`create_run`, :func:`resume_run` write one, snapshot by snapshot;
 * :func:`load_metadata`, :func:`parse_metadata` and :class:`RunMeta` describe it;
-* :func:`audit` runs the checks (``massarc check``) and returns an ``AuditReport``.
+* :func:`audit` runs the checks (``massarc check``) and returns an ``AuditReport``;
+* :func:`summarize` computes and stores the observables (``massarc summarize``); read them
+  back with ``open_run(p).summaries``.
 
 The layers underneath are importable too: ``massarc.schema``, ``massarc.archive``
-(including ``massarc.archive.formats``), ``massarc.validators``, ``massarc.simulate``.
+(including ``massarc.archive.formats``), ``massarc.validators``, ``massarc.summaries``,
+``massarc.simulate``.
 Names are resolved on first use, so ``import massarc`` (and the command line) start fast.
 
 >>> import massarc
@@ -37,6 +40,7 @@ if TYPE_CHECKING:
         resume_run,
     )
     from massarc.schema import MetadataError, RunMeta, load_metadata, parse_metadata
+    from massarc.summaries import summarize
     from massarc.validators import audit
 
 _LAZY = {
@@ -54,6 +58,7 @@ _LAZY = {
     "load_metadata": "massarc.schema",
     "parse_metadata": "massarc.schema",
     "audit": "massarc.validators",
+    "summarize": "massarc.summaries",
 }
 
 __all__ = [
@@ -72,6 +77,7 @@ __all__ = [
     "open_runs",
     "parse_metadata",
     "resume_run",
+    "summarize",
 ]
 
 

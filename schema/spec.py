@@ -17,6 +17,9 @@ __all__ = [
     "MASS",
     "OUTFLOW",
     "RUN_KIND",
+    "SUMMARIES",
+    "SUMMARIES_KIND",
+    "SUMMARY_ARRAYS",
     "TIME",
     "mass_dimensions",
     "parse_version",
@@ -30,7 +33,7 @@ RUN_KIND = "massarc-run"
 COLLECTION_KIND = "massarc-collection"
 
 ARCHIVE_MAJOR = 1
-ARCHIVE_MINOR = 0
+ARCHIVE_MINOR = 1  # 1.1 adds the optional `summaries` group
 ARCHIVE_VERSION = f"{ARCHIVE_MAJOR}.{ARCHIVE_MINOR}"
 
 #: Array names inside a run group.
@@ -41,6 +44,43 @@ INFLOW = "inflow"
 OUTFLOW = "outflow"
 #: Optional subgroup holding an event log.
 EVENTS = "events"
+
+#: Optional subgroup holding the summaries (format 1.1; readers of 1.0 ignore it).
+SUMMARIES = "summaries"
+#: ``format`` value in the ``massarc`` attribute of the summaries group.
+SUMMARIES_KIND = "massarc-summaries"
+
+#: Arrays of the summaries group: name -> (dimension names, units). Units are words:
+#: "mass" (the run's mass unit), "mass^2", "sites", "1" (a pure number), "time" (the run's
+#: ``time_units``), "count". Dimension ``probe`` indexes the bounded set of snapshots
+#: where G(r, t) and the confidence intervals are kept; ``bound`` is (low, high).
+SUMMARY_ARRAYS: dict[str, tuple[tuple[str, ...], str]] = {
+    # per replica and snapshot
+    "largest_mass": (("replica", "time"), "mass"),
+    "largest_site": (("replica", "time"), "1"),
+    "second_moment": (("replica", "time"), "mass^2"),
+    "occupied": (("replica", "time"), "sites"),
+    "condensates": (("replica", "time"), "sites"),
+    "condensate_mass": (("replica", "time"), "mass"),
+    "typical_mass": (("replica", "time"), "mass"),
+    # over replicas
+    "largest_mass_mean": (("time",), "mass"),
+    "largest_mass_var": (("time",), "mass^2"),
+    "typical_mass_mean": (("time",), "mass"),
+    "coarsening_length": (("time",), "sites"),
+    # the probes
+    "probe_snapshot": (("probe",), "1"),
+    "probe_time": (("probe",), "time"),
+    "largest_mass_mean_ci": (("probe", "bound"), "mass"),
+    "largest_mass_var_ci": (("probe", "bound"), "mass^2"),
+    "correlation": (("probe", "r"), "mass^2"),
+    "correlation_y": (("probe", "ry"), "mass^2"),
+    "correlation_x": (("probe", "rx"), "mass^2"),
+    "correlation_zero": (("probe",), "sites"),
+    # over the window
+    "occupation": (("mass",), "count"),
+    "extreme_sample": (("draw",), "mass"),
+}
 
 
 def mass_dimensions(ndim_lattice: int) -> tuple[str, ...]:

@@ -7,6 +7,12 @@
   :func:`register_check` are the plugin interface (third-party checks also come from the
   entry-point group ``massarc.checks``); :func:`available_checks` lists them by id.
 
+The stationary window is public too, for the summaries and other callers:
+:func:`stationary_window` takes a :class:`CheckContext` whose ``stats`` hold the
+``snapshots`` statistic and returns a :class:`Window` (where the stationary part of the run
+starts, its length, its thinning stride, whether it was found); :class:`WindowSettings`
+holds its thresholds (the ``steady-state`` check's options).
+
 Layout: :mod:`.engine` is the framework (registry, runner, settings, result),
 :mod:`.report` the renderings, :mod:`.checks` the built-in checks (one module, or one
 package when a check brings its own statistic or test), :mod:`.analysis` the analyses
@@ -17,6 +23,7 @@ Built-in check ids: ``schema``, ``integrity``, ``time-order``, ``nonnegative``,
 ``stationary-law``.
 """
 
+from .analysis.window import Window, WindowSettings, stationary_window
 from .engine.registry import (
     Check,
     CheckContext,
@@ -40,6 +47,8 @@ __all__ = [
     "Option",
     "RunReport",
     "Where",
+    "Window",
+    "WindowSettings",
     "audit",
     "available_checks",
     "get_check",
@@ -47,4 +56,5 @@ __all__ = [
     "register_check",
     "render",
     "resolve_settings",
+    "stationary_window",
 ]

@@ -18,6 +18,7 @@ __all__ = ["COMMANDS", "cli", "main"]
 COMMANDS: dict[str, tuple[str, str]] = {
     "info": ("info", "Describe runs: model, lattice, boundaries, data, storage."),
     "check": ("check", "Audit runs before publication; exit 1 when a check fails."),
+    "summarize": ("summarize", "Compute and store the observables groups publish."),
     "convert": ("convert", "Convert runs between formats, into or out of an archive."),
     "ingest": ("ingest", "Archive a run live from a simulator's text output."),
     "sample": ("sample", "Simulate a reference ZRP or CMAM run into an archive."),

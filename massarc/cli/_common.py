@@ -18,6 +18,7 @@ from massarc.schema import MetadataError
 __all__ = [
     "EXIT_BAD_INPUT",
     "bad_input",
+    "command_class",
     "die",
     "key_values",
     "metadata_options",
@@ -35,6 +36,20 @@ def die(command: str, message: str) -> NoReturn:
     one_line = " ".join(str(message).split())
     click.echo(f"massarc {command}: error: {one_line}", err=True)
     sys.exit(EXIT_BAD_INPUT)
+
+
+def command_class(command: str) -> type[click.Command]:
+    """A click command class whose usage errors are one line on stderr with status 2, like
+    every other bad input (``@click.command(name, cls=command_class(name))``)."""
+
+    class OneLineErrors(click.Command):
+        def make_context(self, info_name: Any, args: Any, parent: Any = None, **extra: Any) -> Any:
+            try:
+                return super().make_context(info_name, args, parent=parent, **extra)
+            except click.UsageError as exc:
+                die(command, exc.format_message())
+
+    return OneLineErrors
 
 
 @contextmanager

@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
-from typing import Any
 
 import click
 
@@ -25,21 +24,11 @@ from massarc.validators import (
 )
 from massarc.validators.report import RENDERINGS, render_table
 
-from ._common import bad_input, die, progress_bar, rendering_option
+from ._common import bad_input, command_class, die, progress_bar, rendering_option
 
 __all__ = ["command"]
 
 _NAME = "check"
-
-
-class _OneLineErrors(click.Command):
-    """Usage errors as one line on stderr with status 2, like every other bad input."""
-
-    def make_context(self, info_name: Any, args: Any, parent: Any = None, **extra: Any) -> Any:
-        try:
-            return super().make_context(info_name, args, parent=parent, **extra)
-        except click.UsageError as exc:
-            die(_NAME, exc.format_message())
 
 
 def _listing() -> str:
@@ -55,7 +44,7 @@ def _listing() -> str:
     return "\n".join(lines)
 
 
-@click.command(_NAME, cls=_OneLineErrors)
+@click.command(_NAME, cls=command_class(_NAME))
 @click.argument("runs", nargs=-1, metavar="RUN_OR_COLLECTION...")
 @rendering_option(
     RENDERINGS,

@@ -56,6 +56,12 @@ def _text_lines(f: dict[str, Any]) -> list[str]:
         )
     if f.get("events"):
         out.append(f"  events     {f['events']} archived moves")
+    if f.get("summaries"):
+        s = f["summaries"]
+        out.append(
+            f"  summaries  {s['arrays']} arrays by massarc {s['massarc_version']} on "
+            f"{s['created']} ({s['window']} window)"
+        )
     if f.get("simulator"):
         out.append(
             f"  written by {f['simulator']}" + (f" on {f['created']}" if f.get("created") else "")
