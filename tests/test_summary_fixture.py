@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 import zarr
 
-from massarc.archive import open_run
+from massarc.archive import open_run, open_runs
 from massarc.schema.spec import SUMMARIES_KIND, SUMMARY_ARRAYS
 
 FIXTURE = Path(__file__).parent / "fixtures" / "v1.1" / "zrp-ring-summarized.zarr"
@@ -56,4 +56,5 @@ def test_stored_per_snapshot_arrays_equal_numpy_on_the_frozen_masses() -> None:
 
 @pytest.mark.parametrize("path", sorted(Path(__file__).parent.glob("fixtures/v1.0/*.zarr")))
 def test_runs_of_format_1_0_read_without_summaries(path: Path) -> None:
-    assert open_run(path).summaries is None
+    for run in open_runs(path):  # a collection holds several
+        assert run.summaries is None
