@@ -1,146 +1,374 @@
-"""False-alarm and detection rates of the ``steady-state`` check.
+"""Calibration of the ``steady-state`` check on runs stored as groups store them.
 
-Two families of runs, each judged by the check with its default options:
+Every run has 4 replicas on a ring, is labelled ``run.regime = "stationary"`` and, unless a
+row says otherwise, declares no ``run.initial``. The check runs with its default options on
+the ``snapshots`` reduction of the run (:mod:`bench._steady_runs`: the same numbers the
+archive scan gives, without writing an archive).
 
-* synthetic observables (no lattice): stationary AR(1) series, unit variance, for a grid
-  of correlation (phi), length and replica count, under a custom model (judged from the
-  data alone); and the same plus a common power-law drift a (k/n)^(1/3) (the coarsening
-  law l ~ t^(1/z) with z = 3). The check reads only per-snapshot observables, so these
-  are fed to it directly;
-* sampler runs (massarc.simulate, ring of 32 sites, 4 replicas, density 2): clean runs
-  (independent exact ZRP samples; ZRP from an exact steady-state start, asymmetric over
-  4 L^2 and symmetric over L^3) and planted faults (symmetric ZRP and CMAM coarsening
-  from a random start over 0.01 L^3 and 0.03 L^2, labelled stationary).
+Coarsening runs (faults): random start in the condensed phase (rho = 2; ZRP u(k) = 1 + 4/k,
+rho_c = 1/2; CMAM D = w = 1, rho_c = sqrt(2) - 1), stopped long before the relaxation time
+L^z: symmetric ZRP at 0.01 L^3, driven ZRP and CMAM at 0.05 L^2, L = 200. Each run is
+judged twice, without a declared start and with ``run.initial.kind = "random"``; a
+detection is a ``fail``. The fault runs of bench/calibrate.py (L = 32, 1024 log-spaced
+snapshots) are repeated for comparison with docs/calibration.md.
 
-A false alarm is a ``fail`` on a clean run; a detection is a ``fail`` on a faulty one.
-Rates are printed with a 95 % Clopper-Pearson upper bound when no event was seen, and
-written to ``bench/out/steady_state.json``::
+Honest runs: stationary from their first snapshot, start not declared. ZRP from an exact
+steady-state sample (``initial="steady-state"``, not written to the metadata); CMAM from a
+random start run 2 L^2 / D unobserved first (coarsening is over by about L^2 / (4 D)).
+Each honest run is simulated once for 20 relaxation times at a spacing of 10 hop times;
+shorter runs are its first snapshots and wider spacings every 10th or 100th snapshot, so
+the cells of one model share their runs (each cell's rate is still over independent
+runs). A false alarm is a ``fail``; warnings are counted by run length and spacing.
 
-    .venv/bin/python bench/calibrate_steady_state.py           # about 20 minutes
-    .venv/bin/python bench/calibrate_steady_state.py --quick   # about 2 minutes
+Synthetic runs: stationary AR(1) observables (phi 0 to 0.98, 200 or 2000 snapshots, 1 or 4
+replicas) under a custom model, judged from the data alone; a ``fail`` is a false alarm.
+
+Sizes and run counts: 50 runs per cell, except the honest driven ZRP at L = 200 (at most
+20 runs: 20 L^2 is 8e8 attempts per replica, about 70 s of one core per run); the
+symmetric ZRP cannot be run 20 L^3 at L = 200 (1.6e11 attempts per replica), so its
+honest runs are at L = 32 (the same relaxation-time units; its coarsening faults are at
+L = 200).
+
+Rates carry Clopper-Pearson 95 % intervals (scipy.stats.beta)::
+
+    nice -n 10 .venv/bin/python bench/calibrate_steady_state.py                 # ~80 minutes
+    nice -n 10 .venv/bin/python bench/calibrate_steady_state.py --part honest   # ~60 minutes
+    nice -n 10 .venv/bin/python bench/calibrate_steady_state.py --runs 3        # ~5 minutes
+
+Results go to bench/out/steady_state.json and, as tables, to docs/steady_state.md (the
+part between the markers).
 """
 
 from __future__ import annotations
 
 import argparse
-import collections
-import itertools
 import json
+import re
+import sys
 import time
-import uuid
+from collections import Counter
 from pathlib import Path
-from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
 from scipy.signal import lfilter
 from scipy.stats import beta
 
-from massarc.archive.scan import scan
-from massarc.archive.stats import SnapshotStatistic, SnapshotStats
-from massarc.schema import RunMeta, parse_metadata
-from massarc.simulate import simulate
-from massarc.validators import CheckContext
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from bench._steady_runs import Reduced, context, hop_time, make_meta, simulate_reduced
+from massarc.schema import RunMeta
+from massarc.schema.laws import relaxation_time
+from massarc.simulate import snapshot_times
 from massarc.validators.checks.steady_state import SteadyStateCheck
 
-OUT = Path(__file__).resolve().parent / "out" / "steady_state.json"
+ROOT = Path(__file__).resolve().parents[1]
+OUT = ROOT / "bench" / "out" / "steady_state.json"
+DOC = ROOT / "docs" / "steady_state.md"
 CHECK = SteadyStateCheck()
+REPLICAS = 4
+RHO = 2.0
+
+ZRP_SYM = {"family": "zrp", "b": 4.0}
+ZRP_DRIVEN = {"family": "zrp", "b": 4.0, "drift": "asymmetric"}
+CMAM = {"family": "cmam", "diffusion": 1.0, "chipping": 1.0}
 
 
-def _meta(family: str, regime: str = "stationary", sites: int = 32, **model: Any) -> RunMeta:
-    return parse_metadata(
-        {
-            "model": {"family": family, **model},
-            "lattice": {"sites": [sites], "boundary": "periodic"},
-            "run": {"regime": regime},
+def interval(k: int, n: int) -> tuple[float, float]:
+    """Clopper-Pearson 95 % interval of k events in n runs (scipy.stats.beta)."""
+    lo = 0.0 if k == 0 else float(beta.ppf(0.025, k, n - k + 1))
+    hi = 1.0 if k == n else float(beta.ppf(0.975, k + 1, n - k))
+    return lo, hi
+
+
+def meta_of(model: dict[str, Any], sites: int, initial: str | None = None) -> RunMeta:
+    body = dict(model)
+    return make_meta(body.pop("family"), sites, initial=initial, **body)
+
+
+def judge(meta: RunMeta, red: Reduced) -> tuple[str, str]:
+    res = CHECK.run(context(meta, red))
+    return res.status, res.message
+
+
+def kind_of(status: str, message: str) -> str:
+    """Which warning it is (for the tables)."""
+    if status != "warn":
+        return status
+    kinds = []
+    if "cannot judge" in message:
+        kinds.append("too few snapshots")
+    if "too few effective samples" in message:
+        kinds.append("not certified")
+    if "spans only" in message:
+        kinds.append("short run")
+    return "warn: " + " + ".join(kinds or ["other"])
+
+
+class Cell:
+    """Counts of one table row."""
+
+    def __init__(self, name: str, **info: Any) -> None:
+        self.name, self.info = name, info
+        self.status: Counter[str] = Counter()
+        self.kinds: Counter[str] = Counter()
+        self.example = ""
+
+    def add(self, status: str, message: str) -> None:
+        self.status[status] += 1
+        self.kinds[kind_of(status, message)] += 1
+        if status == "warn" and not self.example:
+            self.example = message
+
+    def row(self) -> dict[str, Any]:
+        n = sum(self.status.values())
+        out: dict[str, Any] = {"case": self.name, **self.info, "runs": n}
+        for s in ("pass", "warn", "fail"):
+            k = self.status.get(s, 0)
+            out[s] = k
+            out[f"{s}_ci95"] = interval(k, n) if n else (0.0, 1.0)
+        out["kinds"] = dict(self.kinds)
+        out["example_warning"] = self.example
+        return out
+
+
+def faults(runs: int, seed: int) -> list[dict[str, Any]]:
+    """Coarsening runs labelled stationary, judged without and with a declared start."""
+    cases = [
+        ("symmetric ZRP", ZRP_SYM, 200, 0.01, (10, 100, 1000)),
+        ("driven ZRP", ZRP_DRIVEN, 200, 0.05, (10, 100)),
+        ("CMAM", CMAM, 200, 0.05, (10, 100)),
+    ]
+    rows = []
+    for name, model, length, frac, spacings in cases:
+        meta = meta_of(model, length)
+        tau = relaxation_time(meta)
+        assert tau is not None
+        h = hop_time(meta)
+        times = np.arange(0.0, frac * tau + 0.5 * h, 10.0 * h)
+        cells = {
+            (sp, dec): Cell(
+                f"{name}, L = {length}, to {frac:g} L^z, every {sp} hop times, start "
+                + ("declared" if dec else "not declared"),
+                spacing=sp,
+                declared=dec,
+                snapshots=len(times[:: sp // 10]),
+            )
+            for sp in spacings
+            for dec in (False, True)
         }
-    )
+        for i in range(runs):
+            red = simulate_reduced(
+                meta, times, replicas=REPLICAS, seed=seed + i, mass=round(RHO * length),
+                initial="random",
+            )  # fmt: skip
+            for (sp, dec), cell in cells.items():
+                m = meta_of(model, length, "random" if dec else None)
+                cell.add(*judge(m, red.every(sp // 10)))
+        rows += [c.row() for c in cells.values()]
+        for c in cells.values():
+            print(f"{c.name:75s} {dict(c.status)}", flush=True)
+    # the fault runs of bench/calibrate.py: L = 32, 1024 log-spaced snapshots
+    for name, model, frac, z in (("symmetric ZRP", ZRP_SYM, 0.01, 3), ("CMAM", CMAM, 0.03, 2)):
+        meta = meta_of(model, 32)
+        times = snapshot_times(frac * 32.0**z, 1024, spacing="log")
+        cells = {
+            dec: Cell(
+                f"{name}, L = 32, to {frac:g} L^z, 1024 log-spaced snapshots, start "
+                + ("declared" if dec else "not declared"),
+                spacing="log",
+                declared=dec,
+                snapshots=1024,
+            )
+            for dec in (False, True)
+        }
+        for i in range(runs):
+            red = simulate_reduced(
+                meta, times, replicas=REPLICAS, seed=seed + 500 + i, mass=round(RHO * 32),
+                initial="random",
+            )  # fmt: skip
+            for dec, cell in cells.items():
+                cell.add(*judge(meta_of(model, 32, "random" if dec else None), red))
+        rows += [c.row() for c in cells.values()]
+        for c in cells.values():
+            print(f"{c.name:75s} {dict(c.status)}", flush=True)
+    return rows
 
 
-CUSTOM = _meta("custom", description="synthetic observables")
+HONEST = [
+    # name, model, L, initial, burn-in in relaxation times, largest number of runs
+    ("CMAM", CMAM, 200, "random", 2.0, None),
+    ("driven ZRP", ZRP_DRIVEN, 200, "steady-state", 0.0, 20),
+    ("symmetric ZRP", ZRP_SYM, 32, "steady-state", 0.0, None),
+]
+LENGTHS = (0.05, 0.2, 1.0, 5.0, 20.0)  # run length in relaxation times, at spacing 100
+SPACINGS = (10, 100, 1000)  # hop times, at 20 relaxation times
 
 
-def _synthetic(rng: np.random.Generator, reps: int, n: int, phi: float, drift: float) -> str:
-    e = rng.standard_normal((3, reps, n))
-    e[..., 0] /= np.sqrt(1 - phi**2)
-    x = lfilter([1.0], [1.0, -phi], e, axis=-1) * np.sqrt(1 - phi**2)
-    x += drift * (np.arange(1, n + 1) / n) ** (1 / 3)
-    zero = np.zeros((reps, n), np.int64)
-    stats = SnapshotStats(
-        zero, 50 + 5 * x[0], zero, 4000 + 300 * x[1], 30 - 3 * x[2], zero,
-        np.ones((reps, n), bool), None, 0, None, 0, None, 0,
-    )  # fmt: skip
-    run = SimpleNamespace(times=np.arange(n, dtype=float))
-    options = CHECK.option_values()
-    ctx = CheckContext(run, CUSTOM, {"snapshots": stats}, options)  # type: ignore[arg-type]
-    return CHECK.run(ctx).status
+def honest(runs: int, seed: int) -> list[dict[str, Any]]:
+    """Honest stationary runs, start not declared: warnings by run length and spacing."""
+    rows = []
+    for name, model, length, initial, burn, cap in HONEST:
+        n_runs = min(runs, cap or runs)
+        meta = meta_of(model, length)
+        tau = relaxation_time(meta)
+        assert tau is not None
+        h = hop_time(meta)
+        times = np.arange(0.0, 20.0 * tau + 0.5 * h, 10.0 * h)
+        by_length = {
+            n_tau: Cell(f"{name}, L = {length}, {n_tau:g} L^z, every 100 hop times",
+                        model=name, table="length", tau_units=n_tau, spacing=100)
+            for n_tau in LENGTHS
+        }  # fmt: skip
+        by_spacing = {
+            sp: Cell(f"{name}, L = {length}, 20 L^z, every {sp} hop times",
+                     model=name, table="spacing", tau_units=20.0, spacing=sp)
+            for sp in SPACINGS
+        }  # fmt: skip
+        t0 = time.perf_counter()
+        for i in range(n_runs):
+            red = simulate_reduced(
+                meta, times, replicas=REPLICAS, seed=seed + i, mass=round(RHO * length),
+                initial=initial, burn_in=burn * tau,
+            )  # fmt: skip
+            for sp, cell in by_spacing.items():
+                cell.add(*judge(meta, red.every(sp // 10)))
+            every100 = red.every(10)
+            for n_tau, cell in by_length.items():
+                if n_tau == 20.0:
+                    cell.add(*judge(meta, every100))
+                    continue
+                n = int(np.searchsorted(every100.times, n_tau * tau, side="right"))
+                cell.add(*judge(meta, every100.head(n)))
+        cells = [*by_length.values(), *by_spacing.values()]
+        for c in cells:
+            print(f"{c.name:60s} {dict(c.status)} {dict(c.kinds)}", flush=True)
+        print(f"  {name}: {time.perf_counter() - t0:.0f} s", flush=True)
+        rows += [c.row() for c in cells]
+    return rows
 
 
-def _sampled(meta: RunMeta, times: np.ndarray, seed: int, initial: str, exact: bool) -> str:
-    run = simulate(
-        meta, times, replicas=4, seed=seed, mass=64, initial=initial, exact=exact,
-        location=f"memory://calibrate-{uuid.uuid4().hex}",
-    )  # fmt: skip
-    stats = scan(run, {"snapshots": SnapshotStatistic(run)}).results
-    return CHECK.run(CheckContext(run, run.meta, stats, CHECK.option_values())).status
+def synthetic(runs: int, seed: int) -> list[dict[str, Any]]:
+    """Stationary AR(1) observables under a custom model (judged from the data alone).
+
+    Unit-variance AR(1) series, g = (1 + phi) / (1 - phi) (from memory), as the largest
+    mass, sum of m^2 and occupied sites of R replicas; every ``fail`` is a false alarm.
+    """
+    rng = np.random.default_rng(seed)
+    meta = make_meta("custom", 32, description="synthetic observables")
+    rows = []
+    for phi in (0.0, 0.5, 0.9, 0.98):
+        for n in (200, 2000):
+            for reps in (1, 4):
+                cell = Cell(f"AR(1), phi = {phi}, {n} snapshots, {reps} replicas",
+                            phi=phi, snapshots=n, replicas=reps)  # fmt: skip
+                for _ in range(runs):
+                    e = rng.standard_normal((3, reps, n))
+                    e[..., 0] /= np.sqrt(1 - phi**2)
+                    x = lfilter([1.0], [1.0, -phi], e, axis=-1) * np.sqrt(1 - phi**2)
+                    total = np.full((reps, n), 10**6, np.int64)
+                    red = Reduced(np.arange(n, dtype=float), total, 50 + 5 * x[0],
+                                  4000 + 300 * x[1], 30 - 3 * x[2])  # fmt: skip
+                    cell.add(*judge(meta, red))
+                rows.append(cell.row())
+                print(f"{cell.name:60s} {dict(cell.status)}", flush=True)
+    return rows
 
 
-def _upper(k: int, n: int) -> float:
-    """95 % Clopper-Pearson upper bound of a rate seen k times in n (scipy.stats.beta)."""
-    return 1.0 if k == n else float(beta.ppf(0.95, k + 1, n - k))
+def _ci(lo_hi: tuple[float, float]) -> str:
+    return f"{lo_hi[0]:.3f} - {lo_hi[1]:.3f}"
 
 
-def _row(name: str, counts: collections.Counter, n: int, fault: bool) -> dict[str, Any]:
-    fails = counts.get("fail", 0)
-    row = {"case": name, "runs": n, "fault": fault, **{k: counts.get(k, 0) for k in
-           ("pass", "warn", "fail")}, "fail_rate": fails / n}  # fmt: skip
-    if not fault:
-        row["fail_rate_upper95"] = _upper(fails, n)
-    label = "detection" if fault else "false alarms"
-    extra = "" if fault else f" (95 % upper bound {row['fail_rate_upper95']:.3g})"
-    print(f"{name:46s} {label:12s} {fails:4d}/{n:<4d}{extra}  {dict(counts)}", flush=True)
-    return row
+def tables(result: dict[str, Any]) -> str:
+    lines = [
+        f"Measured by `bench/calibrate_steady_state.py` (seed {result['seed']}, "
+        f"{result['seconds'] / 60:.0f} minutes on one core), 4 replicas per run, default "
+        "options. Intervals: Clopper-Pearson 95 %.",
+        "",
+        "### Coarsening runs labelled stationary (detection = `fail`)",
+        "",
+        "| case | snapshots | runs | fail | 95 % interval | warn | pass |",
+        "| --- | --- | --- | --- | --- | --- | --- |",
+    ]
+    for r in result["faults"]:
+        lines.append(
+            f"| {r['case']} | {r['snapshots']} | {r['runs']} | {r['fail']} | "
+            f"{_ci(r['fail_ci95'])} | {r['warn']} | {r['pass']} |"
+        )
+    for table, title in (
+        ("length", "by run length, a snapshot every 100 hop times"),
+        ("spacing", "by snapshot spacing, runs of 20 relaxation times"),
+    ):
+        lines += [
+            "",
+            f"### Honest runs, start not declared, {title} (false alarm = `fail`)",
+            "",
+            "| case | runs | fail | 95 % interval | warn | 95 % interval | warnings by kind |",
+            "| --- | --- | --- | --- | --- | --- | --- |",
+        ]
+        for r in result["honest"]:
+            if r.get("table") != table:
+                continue
+            kinds = ", ".join(
+                f"{k[6:]} {v}" for k, v in sorted(r["kinds"].items()) if k.startswith("warn")
+            )
+            lines.append(
+                f"| {r['case']} | {r['runs']} | {r['fail']} | {_ci(r['fail_ci95'])} | "
+                f"{r['warn']} | {_ci(r['warn_ci95'])} | {kinds or 'none'} |"
+            )
+    if result.get("synthetic"):
+        lines += [
+            "",
+            "### Stationary AR(1) observables, custom model: data alone (false alarm = `fail`)",
+            "",
+            "| case | runs | fail | 95 % interval | warn |",
+            "| --- | --- | --- | --- | --- |",
+        ]
+        for r in result["synthetic"]:
+            lines.append(
+                f"| {r['case']} | {r['runs']} | {r['fail']} | {_ci(r['fail_ci95'])} | {r['warn']} |"
+            )
+    return "\n".join(lines) + "\n"
+
+
+def write_doc(text: str) -> None:
+    begin, end = "<!-- calibration tables: begin -->", "<!-- calibration tables: end -->"
+    doc = DOC.read_text() if DOC.exists() else f"{begin}\n{end}\n"
+    pattern = re.compile(re.escape(begin) + ".*?" + re.escape(end), re.S)
+    DOC.write_text(pattern.sub(lambda _: f"{begin}\n{text}{end}", doc))
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--quick", action="store_true", help="fewer runs per case")
+    ap.add_argument("--runs", type=int, default=50, help="runs per cell (default 50)")
+    ap.add_argument(
+        "--part",
+        choices=("all", "faults", "honest", "synthetic"),
+        default="all",
+        help="measure only one part; the other is taken from bench/out/steady_state.json",
+    )
     ap.add_argument("--seed", type=int, default=2024)
+    ap.add_argument("--no-doc", action="store_true", help="do not rewrite docs/steady_state.md")
     args = ap.parse_args()
-    n_syn, n_run = (20, 10) if args.quick else (200, 100)
-    rng = np.random.default_rng(args.seed)
-    rows = []
     t0 = time.perf_counter()
-    for phi, n, reps in itertools.product((0.0, 0.5, 0.9, 0.98), (200, 2000), (1, 2, 4, 8)):
-        c = collections.Counter(_synthetic(rng, reps, n, phi, 0.0) for _ in range(n_syn))
-        rows.append(_row(f"AR(1) phi={phi} n={n} R={reps}", c, n_syn, fault=False))
-    for phi, size in itertools.product((0.5, 0.9), (2.0, 4.0)):
-        c = collections.Counter(_synthetic(rng, 4, 2000, phi, size) for _ in range(n_syn))
-        rows.append(_row(f"AR(1) phi={phi} + {size} (k/n)^(1/3), n=2000 R=4", c, n_syn, True))
-    length = 32
-    runs = {
-        "ZRP exact samples": (_meta("zrp", b=4.0), np.linspace(0, 100, 200), "random", True,
-                              False),
-        "ZRP asym., exact start, 4 L^2": (_meta("zrp", b=4.0, drift="asymmetric"),
-                                          np.linspace(0, 4 * length**2, 300), "steady-state",
-                                          False, False),
-        "ZRP sym., exact start, L^3": (_meta("zrp", b=4.0), np.linspace(0, length**3, 300),
-                                       "steady-state", False, False),
-        "ZRP sym., random start, 0.01 L^3": (_meta("zrp", b=4.0),
-                                             np.linspace(0, 0.01 * length**3, 300), "random",
-                                             False, True),
-        "CMAM, random start, 0.03 L^2": (_meta("cmam", diffusion=1.0, chipping=1.0),
-                                         np.linspace(0, 0.03 * length**2, 300), "random",
-                                         False, True),
-    }  # fmt: skip
-    for name, (meta, times, initial, exact, fault) in runs.items():
-        c = collections.Counter(
-            _sampled(meta, times, 10_000 + s, initial, exact) for s in range(n_run)
-        )
-        rows.append(_row(name, c, n_run, fault))
+    result: dict[str, Any] = {"seed": args.seed, "replicas": REPLICAS, "seconds": 0.0}
+    if args.part != "all":
+        result = json.loads(OUT.read_text())
     OUT.parent.mkdir(parents=True, exist_ok=True)
-    OUT.write_text(json.dumps({"seconds": time.perf_counter() - t0, "rows": rows}, indent=1))
-    print(f"wrote {OUT} in {time.perf_counter() - t0:.0f} s")
+    if args.part in ("all", "faults"):
+        result["faults"] = faults(args.runs, args.seed * 1000)
+        OUT.write_text(json.dumps(result, indent=1))  # partial results, in case of a stop
+    if args.part in ("all", "honest"):
+        result["honest"] = honest(args.runs, args.seed * 1000 + 100_000)
+    if args.part in ("all", "synthetic"):
+        result["synthetic"] = synthetic(args.runs, args.seed)
+    result["seconds"] = result.get("seconds", 0.0) + time.perf_counter() - t0
+    OUT.write_text(json.dumps(result, indent=1))
+    text = tables(result)
+    print(text)
+    if not args.no_doc:
+        write_doc(text)
+    print(f"wrote {OUT} in {result['seconds']:.0f} s")
 
 
 if __name__ == "__main__":

@@ -100,7 +100,8 @@ def test_long_well_mixed_ar1_passes():
     assert res.status == "pass", res.message
     assert res.values["certified"] and not res.values["drifting"]
     assert "judged from the data alone" in res.message  # custom model: no relaxation time
-    assert res.thresholds["min_ess"] == 400 and res.thresholds["rhat_max"] == 1.01
+    # defaults: ESS 400 over all replicas, R-hat 1.05 (see the check's docstring)
+    assert res.thresholds["min_ess"] == 400 and res.thresholds["rhat_max"] == 1.05
     g = res.values["observables"]["maximum"]["g"]
     assert g == pytest.approx(3.0, rel=0.25)  # AR(1), phi = 0.5: g = 3 (from memory)
     json.dumps(res.model_dump())  # report-ready values
@@ -222,8 +223,9 @@ def test_long_runs_are_searched_on_block_means_with_the_same_start():
     full = stationary_window(context(x), WindowSettings(detect_length=10**6))
     blocked = stationary_window(context(x), WindowSettings(detect_length=500))  # blocks of 12
     assert 600 <= full.start <= 2000
-    # the N_eff curve is flat near its maximum: agree to 1 % of the run (a few blocks)
-    assert abs(blocked.start - full.start) <= 60
+    # the start is the earliest within the noise of the best N_eff, and blocking changes
+    # that noise a little: agree to 2.5 % of the run (was 1 % for the bare maximum)
+    assert abs(blocked.start - full.start) <= 150
 
 
 def test_missing_metadata_is_judged_from_the_data():
@@ -236,4 +238,4 @@ def test_check_is_registered_with_its_options():
     cls = get_check("steady-state")
     assert cls is SteadyStateCheck
     assert cls.needs == {"snapshots": {}}
-    assert {"rhat_max", "min_ess_per_chain", "drift_z", "relaxing_ratio"} <= set(cls.options)
+    assert {"rhat_max", "min_ess", "drift_z", "relaxing_ratio", "law_alpha"} <= set(cls.options)

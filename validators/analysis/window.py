@@ -18,26 +18,40 @@ in the mean while the noise shrinks by sqrt(replicas), and for independent repli
 mean has the same autocorrelation as each of them. Starts are searched in the first
 ``max_start_fraction`` of the run only (the detector's N_eff can peak by chance on a short
 tail); series longer than ``detect_length`` snapshots are searched on block means
-(the start is then known to a block). The window starts at the latest start over the
-observables. On a stationary run
-the N_eff curve is flat within its noise and the detected start may fall anywhere in the
-first half: that costs effective samples, never correctness; a transient is cut where the
-effective sample size is best, which may leave its faint end in the window.
+(the start is then known to a block). On a stationary run the N_eff curve is flat within
+the noise of its g estimate, and its maximum falls anywhere in the first half, throwing
+away effective samples for nothing; so the start kept is the earliest one whose N_eff is
+within ``start_slack`` standard errors of the maximum (the standard error of g from
+Sokal's window, var(tau_int) ~ 2 (2M + 1) tau_int^2 / n, Madras and Sokal, J. Stat. Phys.
+50, 109, 1988, from memory; the "one standard error" choice of the simplest model within
+the noise of the best is common practice). A transient makes N_eff fall far faster than
+that noise, so its cut moves by little. The window starts at the latest start over the
+observables.
 
 Inside the window, per observable and over (replica, snapshot): Sokal's g and tau_int,
 rank-normalised split R-hat, bulk and tail ESS (Vehtari et al. 2021), and the replica
 trend test (:mod:`.diagnostics.trend`); over the whole run, the same trend test measures
 the transient at the start.
 
+Model evidence (:mod:`.snapshot_law`). For the ZRP (exact law of the largest mass) and
+the condensed CMAM (condensate scale), the first snapshot and the latest admissible start
+(``max_start_fraction`` of the run) are judged against the model's steady state. A first
+snapshot far from it (for the CMAM: every replica below ``condensate_fraction`` of the
+condensate, then growing ``condensate_growth``-fold by the end) is a far start whatever
+the metadata declare (``far_start``); a latest admissible start far from it leaves no
+stationary window of the admissible length (``far_late``).
+
 Verdicts. ``drifting``: a reliable trend test in the window exceeds ``drift_z``.
-``relaxing``: the run cannot have relaxed: it is shorter than ``relaxing_ratio`` times the
-model's relaxation time (``schema.laws.relaxation_time``), it did not start in the
-steady state, the window is not certified, and its replicas have not mixed (R-hat >
-``relaxing_rhat``); from a start not declared far from the steady state (random, uniform,
-condensed) a reliable whole-run trend |z| >= ``drift_z`` is also required.
-``certified``: every observable has R-hat <= ``rhat_max`` and bulk and tail ESS >=
-``min_ess_per_chain`` x replicas. ``found``: a window of at least ``min_snapshots``
-snapshots that is neither drifting nor relaxing.
+``relaxing``: ``far_late`` with replicas that have not mixed (R-hat > ``relaxing_rhat``:
+a run far from the declared law whose replicas agree is more likely a wrong declared
+model, which ``stationary-law`` judges); or the run cannot have relaxed: it is shorter than
+``relaxing_ratio`` times the model's relaxation time (``schema.laws.relaxation_time``),
+it did not start in the steady state, the window is not certified, and its replicas have
+not mixed (R-hat > ``relaxing_rhat``); from a start neither declared nor shown far from
+the steady state (random, uniform, condensed, or ``far_start``) a reliable whole-run trend
+|z| >= ``drift_z`` is also required. ``certified``: every observable has R-hat <=
+``rhat_max`` and bulk and tail ESS >= ``min_ess`` (over all replicas). ``found``: a
+window of at least ``min_snapshots`` snapshots that is neither drifting nor relaxing.
 
 Replicas with an unreadable snapshot are left out (``replicas`` counts those used).
 """
@@ -63,6 +77,7 @@ from .diagnostics import (
     rhat_rank,
     trend_test,
 )
+from .snapshot_law import ExactLargestMass, SnapshotLaw, law_method, snapshot_law
 
 __all__ = ["OBSERVABLES", "ObservableWindow", "Window", "WindowSettings", "stationary_window"]
 
@@ -80,11 +95,15 @@ class WindowSettings:
 
     max_start_fraction: float = 0.5
     min_snapshots: int = 8
-    rhat_max: float = 1.01
-    min_ess_per_chain: float = 100.0
+    rhat_max: float = 1.05
+    min_ess: float = 400.0
     drift_z: float = 5.0
     relaxing_ratio: float = 0.1
     relaxing_rhat: float = 1.1
+    law_alpha: float = 1e-6
+    condensate_fraction: float = 0.5
+    condensate_growth: float = 2.0
+    start_slack: float = 1.0
     sokal_c: float = SOKAL_C
     grid: int = 200
     detect_length: int = 4096
@@ -159,6 +178,14 @@ class Window:
         Per-observable diagnostics by SnapshotStats field name.
     reason
         One line on what decided ``found``.
+    window_time
+        Time spanned by the window (its last minus its first snapshot time).
+    far_start, far_late
+        Model evidence (module docstring): the run started far from the steady state; it
+        is still far from it at the latest admissible start.
+    start_law, late_law
+        The model's judgement of the first snapshot and of the latest admissible start
+        (None when no model evidence applies).
     """
 
     found: bool
@@ -177,6 +204,11 @@ class Window:
     initial: str | None
     observables: dict[str, ObservableWindow] = field(default_factory=dict)
     reason: str = ""
+    window_time: float = float("nan")
+    far_start: bool = False
+    far_late: bool = False
+    start_law: SnapshotLaw | None = None
+    late_law: SnapshotLaw | None = None
 
 
 def stationary_window(ctx: CheckContext, settings: WindowSettings | None = None) -> Window:
@@ -200,6 +232,8 @@ def _start(mean: np.ndarray, latest: int, settings: WindowSettings) -> int:
     A series longer than ``detect_length`` is cut into blocks of b snapshots (aligned on
     its end) whose means are searched: N_eff is nearly unchanged by blocking while blocks
     are shorter than the correlation time, and a start known to b snapshots is enough.
+    The start kept is the earliest candidate within ``start_slack`` standard errors of the
+    best N_eff (module docstring).
     """
     block = max(1, math.ceil(mean.size / settings.detect_length))
     skip = mean.size % block
@@ -212,7 +246,23 @@ def _start(mean: np.ndarray, latest: int, settings: WindowSettings) -> int:
         full_resolution_max=settings.grid,
         max_start=max(0, (latest - skip) // block),
     )
-    return min(latest, skip + eq.start * block) if block > 1 else eq.start
+    first = _earliest_within_noise(eq, mean.size, settings)
+    return min(latest, skip + first * block) if block > 1 else first
+
+
+def _earliest_within_noise(eq: Any, n: int, settings: WindowSettings) -> int:
+    """The earliest candidate start whose N_eff is within ``start_slack`` standard errors of
+    the maximum: N_eff = (n - t0 + 1) / g, and g = 2 tau_int has the relative standard
+    error sqrt(2 (2M + 1) / n_tail) with Sokal's window M ~ c tau_int (Madras and Sokal
+    1988, from memory)."""
+    if settings.start_slack <= 0 or eq.start == 0:
+        return int(eq.start)
+    tail = n - eq.start
+    window = settings.sokal_c * eq.g / 2.0
+    rel = math.sqrt(2.0 * (2.0 * window + 1.0) / max(tail, 1))
+    floor = eq.n_eff * (1.0 - settings.start_slack * rel)
+    ok = np.flatnonzero(np.asarray(eq.n_eff_curve) >= floor)
+    return int(eq.candidates[ok[0]]) if ok.size else int(eq.start)
 
 
 def _blocked(y: np.ndarray, length: int) -> tuple[np.ndarray, int]:
@@ -259,7 +309,7 @@ def compute_window(stats: Any, ctx: CheckContext, settings: WindowSettings) -> W
 
     live = {k: y for k, y in series.items() if np.ptp(y) > 0}
     latest = int(settings.max_start_fraction * (n_snap - 1))
-    latest = min(latest, n_snap - settings.min_snapshots)
+    latest = max(0, min(latest, n_snap - settings.min_snapshots))
     starts = {k: _start(y.mean(axis=0), latest, settings) for k, y in live.items()}
     start = max(starts.values(), default=0)
     n_win = n_snap - start
@@ -284,7 +334,35 @@ def compute_window(stats: Any, ctx: CheckContext, settings: WindowSettings) -> W
             ess_bulk(w), ess_tail(w), rhat_rank(w), drift.z, drift.p, drift.reliable,
             full.z, full.reliable,
         )  # fmt: skip
-    return _judge(obs, start, float(times[start]), n_win, settings, common)
+    total = np.asarray(stats.total, dtype=np.int64)[keep]
+    model = _model_evidence(meta, total, series["maximum"], times, latest, settings)
+    common["window_time"] = float(span)
+    return _judge(obs, start, float(times[start]), n_win, settings, common, model)
+
+
+def _model_evidence(
+    meta: Any,
+    total: np.ndarray,
+    largest: np.ndarray,
+    times: np.ndarray,
+    latest: int,
+    s: WindowSettings,
+) -> dict[str, Any]:
+    """The model's judgement of the first snapshot and of the latest admissible start."""
+    method, _ = law_method(meta)
+    out: dict[str, Any] = {"start_law": None, "late_law": None, "far_start": False}
+    if method is None:
+        return out
+    exact = ExactLargestMass(meta.model, meta.lattice.volume) if method == "exact" else None
+    kw = {"alpha": s.law_alpha, "fraction": s.condensate_fraction, "exact": exact}
+    first = snapshot_law(meta, total[:, 0], largest[:, 0], 0, float(times[0]), **kw)
+    late = snapshot_law(
+        meta, total[:, latest], largest[:, latest], latest, float(times[latest]), **kw
+    )
+    far = first is not None and first.far
+    if far and first is not None and first.method == "condensate":  # ... that then grows
+        far = bool(np.all(largest[:, -1] >= s.condensate_growth * np.maximum(largest[:, 0], 1)))
+    return {"start_law": first, "late_law": late, "far_start": far}
 
 
 def _judge(
@@ -294,38 +372,59 @@ def _judge(
     n_win: int,
     s: WindowSettings,
     common: dict[str, Any],
+    model: dict[str, Any] | None = None,
 ) -> Window:
+    model = model or {"start_law": None, "late_law": None, "far_start": False}
     reps = common["replicas"]
     live = [o for o in obs.values() if not o.constant]
-    min_ess = s.min_ess_per_chain * reps
     certified = all(
-        o.rhat <= s.rhat_max and o.ess_bulk >= min_ess and o.ess_tail >= min_ess for o in live
+        o.rhat <= s.rhat_max and o.ess_bulk >= s.min_ess and o.ess_tail >= s.min_ess for o in live
     )
     drifts = [o for o in live if o.drift_reliable and abs(o.drift_z) >= s.drift_z]
     transient = max((abs(o.transient_z) for o in live), default=0.0)
     transient_sure = max((abs(o.transient_z) for o in live if o.transient_reliable), default=0.0)
     worst_rhat = max((o.rhat for o in live), default=1.0)
     initial, ratio = common["initial"], common["ratio"]
+    far_start = bool(model["far_start"])
+    far = initial in FAR_STARTS or far_start
+    exact_start = initial in EXACT_STARTS and not far_start
     evidence = worst_rhat > s.relaxing_rhat
-    if initial not in FAR_STARTS:
+    if not far:
         evidence = evidence and transient_sure >= s.drift_z
-    relaxing = (
+    short_relaxing = (
         ratio is not None
         and ratio < s.relaxing_ratio
-        and initial not in EXACT_STARTS
+        and not exact_start
         and not certified
         and evidence
     )
+    late = model["late_law"]
+    far_late = late is not None and late.far
+    relaxing = short_relaxing or (far_late and worst_rhat > s.relaxing_rhat)
     efficiency = min((o.ess_bulk / (reps * n_win) for o in live), default=1.0)
-    stride = max(1, math.ceil(max((o.g for o in live), default=1.0)))
+    finite_g = [o.g for o in live if math.isfinite(o.g)]  # g is NaN for a flat window
+    stride = max(1, math.ceil(max(finite_g, default=1.0)))
+    first = model["start_law"]
+    if far_start and initial not in FAR_STARTS and first is not None:
+        started = f"a start far from the steady state ({first.describe()})"
+    else:
+        started = f"a {initial or 'undeclared'} start"
     if drifts:
         d = max(drifts, key=lambda o: abs(o.drift_z))
         reason = f"{OBSERVABLES[d.name]} drifts in the window (trend z = {d.drift_z:.1f})"
+    elif relaxing and far_late:
+        assert late is not None
+        reason = (
+            f"at the latest admissible start of a stationary window, snapshot "
+            f"{late.snapshot} (t = {late.time:.6g}), the run is still far from the steady "
+            f"state ({late.describe()}) and its replicas have not mixed (R-hat "
+            f"{worst_rhat:.4g} > {s.relaxing_rhat})"
+        )
     elif relaxing:
         reason = (
-            f"the run spans {ratio:.3g} of the relaxation time from a "
-            f"{initial or 'undeclared'} start and its replicas have not mixed "
-            f"(R-hat {worst_rhat:.4g} > {s.relaxing_rhat}; whole-run trend z {transient:.1f})"
+            f"the run spans {ratio:.3g} of the relaxation time from {started} and its "
+            f"replicas have not mixed (R-hat {worst_rhat:.4g} > {s.relaxing_rhat}; "
+            f"whole-run trend z {transient:.1f})"
         )
     elif not live:
         reason = "every observable is constant"
@@ -335,5 +434,6 @@ def _judge(
         found=not drifts and not relaxing, start=start, time=time, snapshots=n_win,
         efficiency=float(efficiency), stride=stride, certified=certified,
         drifting=bool(drifts), relaxing=bool(relaxing), **common, observables=obs,
-        reason=reason,
+        reason=reason, far_start=far_start, far_late=far_late, start_law=first,
+        late_law=late,
     )  # fmt: skip
