@@ -63,9 +63,11 @@ say "7. The observables groups publish, stored in each run (massarc summarize)"
 mkdir -p "$WORK/sweep"
 cp -r samples/*.zarr "$WORK/sweep/"   # summarize writes into the runs: keep samples/ as is
 "$M" summarize "$WORK/sweep" --quiet --export csv "$WORK/observables"
-echo "(again: nothing to do, the stored summaries are up to date)"
-"$M" summarize "$WORK/sweep" --quiet --as json | "$PY" -c \
-  'import json, sys; print([r["row"]["computed"] for r in json.load(sys.stdin)["runs"]])'
+echo "(run again: the stored summaries are up to date, nothing is recomputed)"
+"$M" summarize "$WORK/sweep" --quiet --as json | "$PY" -c '
+import json, sys
+runs = json.load(sys.stdin)["runs"]
+print("recomputed", sum(r["row"]["computed"] for r in runs), "of", len(runs), "runs")'
 
 say "8. The coarsening dune strip: variance of the largest mass and growth exponent"
 "$PY" - "$WORK/sweep/dune-strip.zarr" <<'PY'
