@@ -155,24 +155,24 @@ def convolution_power(p: np.ndarray, n: int, mmax: int) -> np.ndarray:
     return result
 
 
-def canonical_site_law(model: ZRPModel, sites: int, mass: int) -> np.ndarray:
+def canonical_site_law(model: ZRPModel, volume: int, mass: int) -> np.ndarray:
     """Exact single-site law P(m), m = 0..mass, of the canonical ZRP steady state.
 
-    P(m) = f(m) Z(sites-1, mass-m) / Z(sites, mass): the product measure conditioned on
+    P(m) = f(m) Z(volume-1, mass-m) / Z(volume, mass): the product measure conditioned on
     the total mass, for a ring (any drift) or a symmetric chain with walls.
 
-    >>> law = canonical_site_law(ZRPModel(family="zrp", rate=1.0), sites=2, mass=2)
+    >>> law = canonical_site_law(ZRPModel(family="zrp", rate=1.0), volume=2, mass=2)
     >>> np.round(law, 6).tolist()   # f = 1: (0,2), (1,1), (2,0) equally likely
     [0.333333, 0.333333, 0.333333]
     """
-    if sites < 1 or mass < 0:
-        raise ValueError(f"expected sites >= 1 and mass >= 0, got sites={sites}, mass={mass}")
-    p = tilt_to_density(site_weights(model, mass), mass / sites)
-    if sites == 1:
+    if volume < 1 or mass < 0:
+        raise ValueError(f"expected volume >= 1 and mass >= 0, got volume={volume}, mass={mass}")
+    p = tilt_to_density(site_weights(model, mass), mass / volume)
+    if volume == 1:
         law = np.zeros(mass + 1)
         law[mass] = 1.0
         return law
-    rest = convolution_power(p, sites - 1, mass)
+    rest = convolution_power(p, volume - 1, mass)
     law = p * rest[::-1]
     return law / law.sum()
 
@@ -227,7 +227,7 @@ def relaxation_time(meta: RunMeta) -> float | None:
     return float(length) ** z / scale
 
 
-def condensate_mass(meta_model: ZRPModel | CMAMModel | object, sites: int, mass: float) -> float:
+def condensate_mass(meta_model: ZRPModel | CMAMModel | object, volume: int, mass: float) -> float:
     """(rho - rho_c) N: the mass a condensed steady state holds in its condensate (0 when
     rho <= rho_c or the model does not condense).
 
@@ -235,9 +235,9 @@ def condensate_mass(meta_model: ZRPModel | CMAMModel | object, sites: int, mass:
     200.0
     """
     rho_c = critical_density(meta_model)
-    if rho_c is None or sites < 1:
+    if rho_c is None or volume < 1:
         return 0.0
-    return max(0.0, mass - rho_c * sites)
+    return max(0.0, mass - rho_c * volume)
 
 
 def _log_weights(model: ZRPModel, kmax: int) -> np.ndarray:
@@ -275,7 +275,7 @@ def _scaled_convolve(a: np.ndarray, b: np.ndarray, n: int) -> tuple[np.ndarray, 
     return out / top, math.log(top)
 
 
-def log_partition(model: ZRPModel, sites: int, mass: int, cap: int | None = None) -> float:
+def log_partition(model: ZRPModel, volume: int, mass: int, cap: int | None = None) -> float:
     """log Z(N, M) = log sum over configurations of N sites holding M units of prod_i f(m_i),
     with f(m) = prod_{k<=m} 1/u(k); with ``cap``, only configurations whose every mass is at
     most ``cap`` count (f truncated at ``cap``). Returns -inf when there are none.
@@ -288,17 +288,17 @@ def log_partition(model: ZRPModel, sites: int, mass: int, cap: int | None = None
     >>> round(math.exp(log_partition(ZRPModel(family="zrp", rate=1.0), 2, 2)), 12)
     3.0
     """
-    if sites < 1 or mass < 0:
-        raise ValueError(f"expected sites >= 1 and mass >= 0, got sites={sites}, mass={mass}")
+    if volume < 1 or mass < 0:
+        raise ValueError(f"expected volume >= 1 and mass >= 0, got volume={volume}, mass={mass}")
     top = mass if cap is None else min(int(cap), mass)
-    if top < 0 or sites * top < mass:
+    if top < 0 or volume * top < mass:
         return -math.inf
     logf = _log_weights(model, top)
     if mass == 0:
-        return sites * float(logf[0])
-    if sites * top == mass:  # every site holds exactly `top`
-        return sites * float(logf[top])
-    theta = _tilt(logf, mass / sites)
+        return volume * float(logf[0])
+    if volume * top == mass:  # every site holds exactly `top`
+        return volume * float(logf[top])
+    theta = _tilt(logf, mass / volume)
     a = logf + theta * np.arange(top + 1)
     log_c = float(logsumexp(a))
     size = mass + 1
@@ -308,7 +308,7 @@ def log_partition(model: ZRPModel, sites: int, mass: int, cap: int | None = None
     result = np.zeros(size)
     result[0] = 1.0
     log_result = 0.0
-    n = sites
+    n = volume
     while n > 0:
         if n & 1:
             result, s = _scaled_convolve(result, base, size)
@@ -319,11 +319,11 @@ def log_partition(model: ZRPModel, sites: int, mass: int, cap: int | None = None
             log_base = 2.0 * log_base + s
     if result[mass] <= 0.0:
         return -math.inf
-    return math.log(result[mass]) + log_result - theta * mass + sites * log_c
+    return math.log(result[mass]) + log_result - theta * mass + volume * log_c
 
 
 def largest_mass_cdf(
-    model: ZRPModel, sites: int, mass: int, k: int, log_z: float | None = None
+    model: ZRPModel, volume: int, mass: int, k: int, log_z: float | None = None
 ) -> float:
     """P(max_i m_i <= k) in the canonical ZRP steady state of N sites holding M units:
     Z_k(N, M) / Z(N, M), Z_k with the weights truncated at k. ``log_z`` may pass
@@ -334,22 +334,22 @@ def largest_mass_cdf(
     """
     if k >= mass:
         return 1.0
-    log_k = log_partition(model, sites, mass, cap=k)
+    log_k = log_partition(model, volume, mass, cap=k)
     if log_k == -math.inf:
         return 0.0
     if log_z is None:
-        log_z = log_partition(model, sites, mass)
+        log_z = log_partition(model, volume, mass)
     return min(1.0, math.exp(log_k - log_z))
 
 
-def largest_mass_quantile(model: ZRPModel, sites: int, mass: int, q: float) -> int:
+def largest_mass_quantile(model: ZRPModel, volume: int, mass: int, q: float) -> int:
     """The smallest K with P(max <= K) >= q (bisection on :func:`largest_mass_cdf`)."""
-    log_z = log_partition(model, sites, mass)
-    lo, hi = max(0, -(-mass // max(sites, 1)) - 1), mass  # P(max <= lo) = 0 unless lo = M
+    log_z = log_partition(model, volume, mass)
+    lo, hi = max(0, -(-mass // max(volume, 1)) - 1), mass  # P(max <= lo) = 0 unless lo = M
     while hi - lo > 1:
         mid = (lo + hi) // 2
-        if largest_mass_cdf(model, sites, mass, mid, log_z) >= q:
+        if largest_mass_cdf(model, volume, mass, mid, log_z) >= q:
             hi = mid
         else:
             lo = mid
-    return hi if largest_mass_cdf(model, sites, mass, lo, log_z) < q else lo
+    return hi if largest_mass_cdf(model, volume, mass, lo, log_z) < q else lo

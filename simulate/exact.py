@@ -3,7 +3,7 @@
 The law of the masses on N sites with total M is the product measure with single-site
 weight f(m) = prod_{k<=m} 1/u(k) conditioned on the sum (Evans and Hanney, J. Phys. A 38,
 R195, 2005). The sampler splits the lattice recursively into halves: a block of n sites
-holding mass a gives its left half (n1 = n // 2 sites) the mass a1 with probability
+holding mass a gives its left half (n1 = n // 2 volume) the mass a1 with probability
 proportional to Z(n1, a1) Z(n - n1, a - a1), then both halves are split in turn.
 
 Only O(log N) block sizes occur, so only O(log N) partition-function tables are needed,
@@ -38,29 +38,29 @@ class SteadyStateSampler:
     The partition-function tables are built once; :meth:`sample` then draws any number of
     independent configurations.
 
-    >>> s = SteadyStateSampler(ZRPModel(family="zrp", b=3.0), sites=8, mass=6)
+    >>> s = SteadyStateSampler(ZRPModel(family="zrp", b=3.0), volume=8, mass=6)
     >>> x = s.sample(4, np.random.default_rng(1))
     >>> x.shape, x.sum(axis=1).tolist()
     ((4, 8), [6, 6, 6, 6])
     """
 
-    def __init__(self, model: ZRPModel, sites: int, mass: int) -> None:
+    def __init__(self, model: ZRPModel, volume: int, mass: int) -> None:
         if not isinstance(model, ZRPModel):
             raise SamplerError(
                 f"model: expected a ZRP model for exact steady-state samples; got "
                 f"{getattr(model, 'family', type(model).__name__)}"
             )
-        if sites < 1 or mass < 0:
-            raise SamplerError(f"expected sites >= 1 and mass >= 0; got {sites} and {mass}")
+        if volume < 1 or mass < 0:
+            raise SamplerError(f"expected volume >= 1 and mass >= 0; got {volume} and {mass}")
         self.model = model
-        self.sites = int(sites)
+        self.volume = int(volume)
         self.mass = int(mass)
-        weights = tilt_to_density(site_weights(model, self.mass), self.mass / self.sites)
+        weights = tilt_to_density(site_weights(model, self.mass), self.mass / self.volume)
         self._z: dict[int, np.ndarray] = {1: weights / weights.max()}
         self._log_z: dict[int, np.ndarray] = {}
-        if self.sites > 1:  # the tables of the two halves, and through them all the others
-            self._log_table(self.sites // 2)
-            self._log_table(self.sites - self.sites // 2)
+        if self.volume > 1:  # the tables of the two halves, and through them all the others
+            self._log_table(self.volume // 2)
+            self._log_table(self.volume - self.volume // 2)
 
     def _table(self, n: int) -> np.ndarray:
         """Z(n, 0..mass) scaled to a maximum of 1, memoised: Z(n) = Z(n // 2) * Z(n - n // 2)."""
@@ -77,9 +77,9 @@ class SteadyStateSampler:
         return self._log_z[n]
 
     def sample(self, size: int, rng: np.random.Generator) -> np.ndarray:
-        """``size`` independent configurations, shaped ``(size, sites)``, int64."""
+        """``size`` independent configurations, shaped ``(size, volume)``, int64."""
         masses = np.full((size, 1), self.mass, dtype=np.int64)
-        blocks = [self.sites]
+        blocks = [self.volume]
         while max(blocks) > 1:
             new_blocks: list[int] = []
             keep_src: list[int] = []
@@ -150,7 +150,7 @@ def _draw_split_chunk(
 
 
 def sample_steady_state(
-    model: ZRPModel, sites: int, mass: int, size: int, rng: np.random.Generator
+    model: ZRPModel, volume: int, mass: int, size: int, rng: np.random.Generator
 ) -> np.ndarray:
     """``size`` independent exact samples of the canonical ZRP steady state.
 
@@ -158,7 +158,7 @@ def sample_steady_state(
     ----------
     model
         The ZRP (any hop-rate law).
-    sites, mass
+    volume, mass
         Number of sites N and total mass M.
     size
         Number of independent samples.
@@ -168,7 +168,7 @@ def sample_steady_state(
     Returns
     -------
     numpy.ndarray
-        ``(size, sites)`` int64 masses, each row summing to ``mass``. The law is the same on
+        ``(size, volume)`` int64 masses, each row summing to ``mass``. The law is the same on
         a ring (any drift) and on a symmetric chain with walls, in 1D or 2D (reshape a row).
 
     Examples
@@ -178,4 +178,4 @@ def sample_steady_state(
     >>> x.sum(axis=1).tolist()
     [100, 100, 100]
     """
-    return SteadyStateSampler(model, sites, mass).sample(size, rng)
+    return SteadyStateSampler(model, volume, mass).sample(size, rng)
