@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
 from massarc.validators.engine.settings import (
@@ -28,7 +29,7 @@ def test_pyproject_found_upward(tmp_path) -> None:
     (tmp_path / "pyproject.toml").write_text(PYPROJECT)
     deep = tmp_path / "a" / "b"
     deep.mkdir(parents=True)
-    assert find_config([], cwd=deep) == tmp_path / "pyproject.toml"
+    assert find_config(cwd=deep) == tmp_path / "pyproject.toml"
     s = resolve_settings(cwd=deep)
     assert (s.skip, s.strict, s.options) == (
         ("time-order",),
@@ -43,27 +44,22 @@ def test_pyproject_without_table_is_passed_over(tmp_path) -> None:
     inner = tmp_path / "inner"
     inner.mkdir()
     (inner / "pyproject.toml").write_text('[project]\nname = "other"\n')
-    assert find_config([], cwd=inner) == tmp_path / "pyproject.toml"
+    assert find_config(cwd=inner) == tmp_path / "pyproject.toml"
 
 
-def test_massarc_toml_beside_runs_wins_and_cli_overrides(tmp_path) -> None:
+def test_massarc_toml_of_the_project_wins_and_cli_overrides(tmp_path) -> None:
     (tmp_path / "pyproject.toml").write_text(PYPROJECT)
-    runs = tmp_path / "data"
-    runs.mkdir()
-    (runs / "massarc.toml").write_text(
+    project = tmp_path / "project"
+    project.mkdir()
+    (project / "massarc.toml").write_text(
         'skip = ["schema"]\nstrict = false\n[checks.conservation]\ntolerance = 5\n'
     )
-    run = runs / "r.zarr"
-    s = resolve_settings(locations=[run], cwd=tmp_path)
-    assert s.source == str(runs / "massarc.toml")
+    s = resolve_settings(cwd=project)
+    assert s.source == str(project / "massarc.toml")
     assert (s.skip, s.strict, s.options["conservation"]) == (("schema",), False, {"tolerance": 5})
     # the command line overrides the file
     s = resolve_settings(
-        locations=[run],
-        cwd=tmp_path,
-        strict=True,
-        skip=["integrity"],
-        sets=["conservation.tolerance=1"],
+        cwd=project, strict=True, skip=["integrity"], sets=["conservation.tolerance=1"]
     )
     assert (s.skip, s.strict, s.options["conservation"]) == (
         ("schema", "integrity"),
@@ -71,13 +67,43 @@ def test_massarc_toml_beside_runs_wins_and_cli_overrides(tmp_path) -> None:
         {"tolerance": 1},
     )
     # --only names a check the file skips: it runs
-    s = resolve_settings(locations=[run], cwd=tmp_path, only=["schema"])
+    s = resolve_settings(cwd=project, only=["schema"])
     assert (s.only, s.skip) == (("schema",), ())
     # --config names a file explicitly: it wins over both
     other = tmp_path / "ci.toml"
     other.write_text("strict = true\n")
-    s = resolve_settings(config=other, locations=[run], cwd=tmp_path)
+    s = resolve_settings(config=other, cwd=project)
     assert (s.source, s.skip, s.strict) == (str(other), (), True)
+
+
+def test_a_file_that_travels_with_the_runs_never_sets_the_rules(tmp_path) -> None:
+    """A downloaded collection carries a massarc.toml inside a run and beside the runs that
+    would let a run losing mass pass: the audit must not read either (common practice:
+    the auditor's rules, not the data's)."""
+    from conftest import make_meta
+
+    from massarc.archive import create_run
+    from massarc.validators import audit
+
+    data = tmp_path / "download"
+    run = data / "leaky.zarr"
+    masses = np.full((2, 6, 8), 3, np.int64)
+    masses[1, 3:, 0] -= 1  # replica 1 loses one unit from snapshot 3 on
+    with create_run(run, make_meta(sites=(8,)), strict=False) as w:
+        w.append(np.arange(6.0), masses)
+    lenient = "[checks.conservation]\ntolerance = 100000\n"
+    (run / "massarc.toml").write_text(lenient)
+    (data / "massarc.toml").write_text(lenient)
+    auditor = tmp_path / "auditor"
+    auditor.mkdir()
+    s = resolve_settings(cwd=auditor)
+    assert s.source is None and s.options == {}
+    s = resolve_settings(cwd=data)  # even run from the download folder: that is a choice
+    assert s.source == str(data / "massarc.toml")
+    report = audit([run], options=resolve_settings(cwd=auditor).options)
+    by_id = {c.id: c for c in report.runs[0].checks}
+    assert by_id["conservation"].status == "fail"
+    assert by_id["conservation"].where is not None and by_id["conservation"].where.replica == 1
 
 
 @pytest.mark.parametrize(

@@ -65,7 +65,8 @@ def _listing() -> str:
 @click.option(
     "--config",
     type=click.Path(dir_okay=False),
-    help="Settings file (default: massarc.toml beside the runs, else pyproject.toml).",
+    help="Settings file (default: the nearest massarc.toml, or pyproject.toml with "
+    "[tool.massarc], from the current directory up; never a file that travels with the runs).",
 )
 @click.option("--list", "list_", is_flag=True, help="List the registered checks and exit.")
 @click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
@@ -91,9 +92,7 @@ def command(
     if not runs:
         die(_NAME, "expected at least one RUN_OR_COLLECTION; got none")
     try:
-        settings = resolve_settings(
-            config=config, locations=runs, skip=skip, only=only, strict=strict, sets=sets
-        )
+        settings = resolve_settings(config=config, skip=skip, only=only, strict=strict, sets=sets)
     except ConfigError as exc:
         die(_NAME, str(exc))
     opened = []

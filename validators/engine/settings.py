@@ -1,9 +1,11 @@
 """Audit settings from files and the command line.
 
-A project's ``pyproject.toml`` (found by searching upward from the current directory)
-holds them under ``[tool.massarc]``; a ``massarc.toml`` beside the runs holds the same keys
-at its top level, and wins over ``pyproject.toml``; ``--config FILE`` wins over both. Only
-one file is read. Keys::
+Audit rules come from the person running the audit, never from the data: a file that
+travels with the runs (inside a run or beside it in a downloaded collection) is never
+read. The file that applies is ``--config FILE`` when given, else the nearest
+``massarc.toml`` (keys at its top level) or ``pyproject.toml`` with a ``[tool.massarc]``
+table, searching from the current directory upward (``massarc.toml`` wins when both are in
+one directory). Only one file is read, and the report names it. Keys::
 
     [tool.massarc]
     skip = ["steady-state"]          # check ids not to run
@@ -21,7 +23,7 @@ are errors naming the file and key.
 from __future__ import annotations
 
 import tomllib
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
 
@@ -42,7 +44,7 @@ __all__ = [
     "resolve_settings",
 ]
 
-#: Name of the configuration file looked for beside the runs.
+#: Name of a project's own configuration file (looked for from the current directory up).
 FILE_NAME = "massarc.toml"
 _KEYS = ("checks", "skip", "strict")
 
@@ -177,19 +179,15 @@ def _has_tool_table(path: Path) -> bool:
     return isinstance(tool, Mapping) and "massarc" in tool
 
 
-def find_config(locations: Sequence[Any] = (), cwd: str | Path | None = None) -> Path | None:
-    """The configuration file that applies: ``massarc.toml`` in or beside the first run
-    location that has one, else the nearest ``pyproject.toml`` with ``[tool.massarc]``
-    from ``cwd`` (default: the current directory) upward; None if there is none."""
-    for loc in locations:
-        if not isinstance(loc, str | Path) or "://" in str(loc):
-            continue
-        p = Path(loc)
-        for candidate in (p / FILE_NAME, p.parent / FILE_NAME):
-            if candidate.is_file():
-                return candidate
+def find_config(cwd: str | Path | None = None) -> Path | None:
+    """The configuration file of the auditor's project: the nearest ``massarc.toml``, or
+    ``pyproject.toml`` with ``[tool.massarc]``, from ``cwd`` (default: the current
+    directory) upward; None if there is none. The runs' own folders are never searched."""
     here = Path(cwd) if cwd is not None else Path.cwd()
     for d in (here.resolve(), *here.resolve().parents):
+        own = d / FILE_NAME
+        if own.is_file():
+            return own
         candidate = d / "pyproject.toml"
         if candidate.is_file() and _has_tool_table(candidate):
             return candidate
@@ -214,7 +212,6 @@ def _parse_sets(items: Iterable[str], checks: Mapping[str, type[Check]]) -> dict
 def resolve_settings(
     *,
     config: str | Path | None = None,
-    locations: Sequence[Any] = (),
     cwd: str | Path | None = None,
     skip: Iterable[str] = (),
     only: Iterable[str] = (),
@@ -229,7 +226,7 @@ def resolve_settings(
     (('schema',), {'conservation': {'tolerance': 1}})
     """
     checks = available_checks() if checks is None else checks
-    path = Path(config) if config is not None else find_config(locations, cwd)
+    path = Path(config) if config is not None else find_config(cwd)
     if config is not None and not Path(config).is_file():
         raise ConfigError(f"{config}: no such configuration file")
     base = load_settings(path, checks) if path is not None else AuditSettings()

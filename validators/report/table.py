@@ -50,7 +50,8 @@ def _summary(report: AuditReport) -> str:
     strict = " (strict: warnings fail)" if report.strict else ""
     noun = "run" if len(runs) == 1 else "runs"
     head = f"{len(runs)} {noun} audited in {report.seconds:.1f} s"
-    return f"{head}; runs: {by_run or 'none'}; checks: {by_check or 'none'}{strict}"
+    rules = f"settings from {report.config}" if report.config else "default settings"
+    return f"{head}; runs: {by_run or 'none'}; checks: {by_check or 'none'}{strict}; {rules}"
 
 
 def render_table(report: AuditReport, file: IO[str], *, quiet: bool = False) -> None:
