@@ -74,8 +74,8 @@ class DriftCheck(Check):
         "margin": Option(
             2.0,
             float,
-            "an axis passes (or fails as too weak) only when the declared drift would reach "
-            "the test's threshold by this many standard deviations more",
+            "an axis is judged (pass, or fail as too weak) only when the drift it is tested "
+            "against would clear the test's threshold by this many standard deviations",
         ),
         "tolerance": Option(
             0.5,
