@@ -20,6 +20,7 @@ from massarc.validators.analysis.replica_tests import (
     _deviations,
     copy_p_value,
     pair_product_test,
+    pair_tests,
     replica_mean_test,
 )
 
@@ -113,3 +114,10 @@ def test_two_replicas_are_compared_only_when_stationary():
     x = np.random.default_rng(8).standard_normal((2, 100))
     assert pair_product_test(x) == []
     assert len(pair_product_test(x, stationary=True)) == 1
+
+
+def test_pair_tests_are_the_pair_test_and_the_copy_p_value_together():
+    x = _ar1(np.random.default_rng(9), (4, 200), 0.5)
+    tests, copy = pair_tests(x)
+    assert tests == pair_product_test(x) and copy == copy_p_value(x)
+    assert pair_tests(x[:2]) == ([], 1.0)  # two replicas of a transient: not compared

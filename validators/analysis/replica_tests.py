@@ -61,7 +61,14 @@ from scipy.stats import t as student
 from .diagnostics.autocorr import SOKAL_C, autocorrelation, sokal_window
 from .diagnostics.rank import rank_normalize
 
-__all__ = ["MeanTest", "PairTest", "copy_p_value", "pair_product_test", "replica_mean_test"]
+__all__ = [
+    "MeanTest",
+    "PairTest",
+    "copy_p_value",
+    "pair_product_test",
+    "pair_tests",
+    "replica_mean_test",
+]
 
 #: Scores are capped at this size (a noiseless series would give infinity).
 Z_CAP = 1e6
@@ -165,15 +172,28 @@ def pair_product_test(
     gap). Two replicas are compared only when ``stationary`` (their own average increment
     then stands in for the common one).
     """
+    return pair_tests(x, stationary=stationary, c=c)[0]
+
+
+def copy_p_value(x: np.ndarray, *, stationary: bool = False, c: float = SOKAL_C) -> float:
+    """The p-value of :func:`pair_product_test` for a pair whose second replica copies the
+    first (d_q = d_r), the median over replicas: how strongly the data could show a copy.
+    1 when there is nothing to compare, or when the score is not reliable."""
+    return pair_tests(x, stationary=stationary, c=c)[1]
+
+
+def pair_tests(
+    x: np.ndarray, *, stationary: bool = False, c: float = SOKAL_C
+) -> tuple[list[PairTest], float]:
+    """:func:`pair_product_test` and :func:`copy_p_value` of ``x`` together, from one
+    computation of the rank scores (the costly part on a long run)."""
     a = np.asarray(x, dtype=np.float64)
     if a.ndim == 2:
         a = a[:, :, None]
     reps = a.shape[0]
-    keep = np.isfinite(a).all(axis=(0, 2))
-    a = a[:, keep]
-    n = a.shape[1]
-    if reps < 2 or n < 4 or (reps == 2 and not stationary):
-        return []
+    a = a[:, np.isfinite(a).all(axis=(0, 2))]
+    if reps < 2 or a.shape[1] < 4 or (reps == 2 and not stationary):
+        return [], 1.0
     d, shared = _deviations(a, reps)
     out = []
     for r in range(reps):
@@ -187,7 +207,12 @@ def pair_product_test(
             denom = math.sqrt(norm_r * norm_q)
             corr = float(prod.sum() / denom) if denom > 0 else math.nan
             out.append(PairTest(r, q, corr, test.z, p_value, test.ess, test.reliable))
-    return out
+    ps = []
+    for r in range(reps):  # a copy: d_q = d_r
+        test = replica_mean_test((np.einsum("tk,tk->t", d[r], d[r]) + shared)[None, :], c)
+        ok = test.reliable and math.isfinite(test.z)
+        ps.append(test.p_one_sided(1.0) if ok else 1.0)
+    return out, float(np.median(ps))
 
 
 def _deviations(a: np.ndarray, reps: int) -> tuple[np.ndarray, np.ndarray]:
@@ -202,23 +227,3 @@ def _deviations(a: np.ndarray, reps: int) -> tuple[np.ndarray, np.ndarray]:
         return d, np.einsum("rtk,rtk->t", d, d) / reps / (reps - 1)
     d = d - d.mean(axis=1, keepdims=True)
     return d, np.zeros(d.shape[1])
-
-
-def copy_p_value(x: np.ndarray, *, stationary: bool = False, c: float = SOKAL_C) -> float:
-    """The p-value of :func:`pair_product_test` for a pair whose second replica copies the
-    first (d_q = d_r), the median over replicas: how strongly the data could show a copy.
-    1 when there is nothing to compare, or when the score is not reliable."""
-    a = np.asarray(x, dtype=np.float64)
-    if a.ndim == 2:
-        a = a[:, :, None]
-    reps = a.shape[0]
-    a = a[:, np.isfinite(a).all(axis=(0, 2))]
-    if reps < 2 or a.shape[1] < 4 or (reps == 2 and not stationary):
-        return 1.0
-    d, shared = _deviations(a, reps)
-    ps = []
-    for r in range(reps):
-        test = replica_mean_test((np.einsum("tk,tk->t", d[r], d[r]) + shared)[None, :], c)
-        ok = test.reliable and math.isfinite(test.z)
-        ps.append(test.p_one_sided(1.0) if ok else 1.0)
-    return float(np.median(ps))

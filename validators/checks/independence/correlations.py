@@ -1,7 +1,8 @@
 """Cross-replica correlation: do replicas change together beyond chance?
 
-:func:`massarc.validators.analysis.replica_tests.pair_product_test` on the largest mass,
-the sum of squares and the number of occupied sites of every snapshot (the ``snapshots``
+The pair product test of :mod:`massarc.validators.analysis.replica_tests` (with the
+p-value a copied replica would get: ``pair_tests``) on the largest mass, the sum of
+squares and the number of occupied sites of every snapshot (the ``snapshots``
 statistic), and on the coarse profiles of the ``profiles`` statistic; Bonferroni over
 pairs and observables (the ``independence`` check).
 """
@@ -12,7 +13,7 @@ from typing import Any
 
 import numpy as np
 
-from ...analysis.replica_tests import PairTest, copy_p_value, pair_product_test
+from ...analysis.replica_tests import PairTest, pair_tests
 
 __all__ = ["correlation_tests"]
 
@@ -39,8 +40,8 @@ def correlation_tests(
     for name, x in series.items():
         if np.nanmax(x) == np.nanmin(x):
             continue
-        tests = pair_product_test(x, stationary=stationary)
+        tests, copy_p = pair_tests(x, stationary=stationary)
         tried += len(tests)
         out.extend((name, t) for t in tests)
-        copy = min(copy, copy_p_value(x, stationary=stationary))
+        copy = min(copy, copy_p)
     return out, tried, copy

@@ -156,24 +156,18 @@ class Relation:
         }
 
 
-def _segments(keys: np.ndarray, valid: np.ndarray) -> list[tuple[int, int, int, int]]:
-    """(replica, start, length, key) of the runs of equal consecutive valid keys."""
-    out = []
-    for r in range(keys.shape[0]):
-        k, ok = keys[r], valid[r]
-        n = len(k)
-        if not n:
-            continue
-        same_prev = np.zeros(n, bool)
-        same_prev[1:] = ok[:-1] & (k[1:] == k[:-1])
-        starts = np.flatnonzero(ok & ~same_prev)
-        same_next = np.zeros(n, bool)
-        same_next[:-1] = same_prev[1:]
-        ends = np.flatnonzero(ok & ~same_next)
-        out.extend(
-            (r, int(a), int(b - a + 1), int(k[a])) for a, b in zip(starts, ends, strict=True)
-        )
-    return out
+def _segments(
+    keys: np.ndarray, valid: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Replica, start, length and key of the runs of equal consecutive valid keys, in
+    replica then time order (one array each)."""
+    same_prev = np.zeros(keys.shape, bool)
+    same_prev[:, 1:] = valid[:, :-1] & valid[:, 1:] & (keys[:, 1:] == keys[:, :-1])
+    same_next = np.zeros(keys.shape, bool)
+    same_next[:, :-1] = same_prev[:, 1:]
+    replica, start = np.nonzero(valid & ~same_prev)
+    _, end = np.nonzero(valid & ~same_next)
+    return replica, start, end - start + 1, keys[replica, start]
 
 
 def _roll_of(fp: FingerprintStats, r: int, t: int, q: int, u: int) -> tuple[int, ...]:
@@ -213,19 +207,17 @@ def _collect(
 ) -> int:
     """Add the matches proposed by equal ``keys`` (of windows of ``width`` snapshots) to
     ``relations``; return the number of recurring groups left out."""
-    segs = _segments(keys, valid)
-    if not segs:
+    replica, start, length, key = _segments(keys, valid)
+    if not len(key):
         return 0
-    seg_keys = np.array([s[3] for s in segs], dtype=np.uint64)
-    order = np.argsort(seg_keys, kind="stable")
-    sorted_keys = seg_keys[order]
-    bounds = np.flatnonzero(np.diff(sorted_keys)) + 1
-    groups = np.split(order, bounds)
+    order = np.argsort(key, kind="stable")
+    cuts = np.flatnonzero(np.diff(key[order])) + 1
+    first = np.concatenate([[0], cuts])
+    last = np.concatenate([cuts, [len(order)]])
     recurring = 0
-    for g in groups:
-        if len(g) < 2:
-            continue
-        members = [segs[i] for i in g]
+    for lo, hi in zip(first[last - first >= 2], last[last - first >= 2], strict=True):
+        g = order[lo:hi]  # segments sharing one key: only these can match
+        members = [(int(replica[i]), int(start[i]), int(length[i]), int(key[i])) for i in g]
         per = np.bincount([m[0] for m in members])
         if np.count_nonzero(per) < 2:
             continue
@@ -363,8 +355,9 @@ def copy_power(
     out = []
     for r in range(keys.shape[0]):
         rel = Relation("exact", r, r, 0, ())
-        rel.matches = [(int(t), int(keys[r, t])) for t in np.flatnonzero(valid[r])]
-        rel.verified = [t for t, _ in rel.matches if sampled[t]]
+        seen = np.flatnonzero(valid[r] & sampled)  # judge_relation reads only these
+        rel.matches = list(zip(seen.tolist(), keys[r, seen].tolist(), strict=True))
+        rel.verified = seen.tolist()
         judge_relation(rel, log_q, sampled, valid, gap, hypotheses, excluded_before)
         out.append(rel.log10_p)
     return float(np.median(out)) if out else 0.0
