@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from _audit_runs import chunk_file, write_run
 
-from massarc.validators import AuditReport, CheckResult, RunReport, audit, render
+from massarc.validators import AuditReport, CheckResult, RunReport, Where, audit, render
 from massarc.validators.report import render_table
 
 
@@ -101,3 +101,27 @@ def test_table_uses_the_status_words_of_json_and_junit(two_runs) -> None:
     words = {w for ln in text.splitlines() for w in ln.split()}
     assert shown <= words  # each status appears as itself
     assert not {"ok", "FAIL", "ERROR", "passed", "failed"} & words
+
+
+def test_an_axis_is_shown_in_every_rendering() -> None:
+    # a drift verdict points at a lattice axis, named as the mass array's dimension is
+    results = [
+        CheckResult(id="drift", status="fail", message="driven", where=Where(axis="x")),
+        CheckResult(id="other", status="warn", message="w", where=Where(replica=1, axis="y")),
+    ]
+    report = AuditReport(
+        runs=[RunReport(path="r.zarr", status="fail", checks=results)],
+        status="fail",
+        massarc_version="t",
+    )
+    doc = json.loads(render(report, "json"))
+    drift, other = doc["runs"][0]["checks"]
+    assert set(drift) == {"id", "status", "message", "where", "values", "thresholds"}
+    assert drift["where"] == {"axis": "x"}  # null keys still left out
+    assert other["where"] == {"replica": 1, "axis": "y"}
+    cases = ET.fromstring(render(report, "junit")).find("testsuite").findall("testcase")
+    assert json.loads(cases[0].find("failure").text)["where"] == {"axis": "x"}
+    assert '"axis": "y"' in cases[1].find("system-out").text
+    rows = render(report, "table").splitlines()
+    assert any("drift" in ln and "axis x" in ln for ln in rows)
+    assert any("other" in ln and "replica 1, axis y" in ln for ln in rows)

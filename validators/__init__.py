@@ -19,8 +19,8 @@ package when a check brings its own statistic or test), :mod:`.analysis` the ana
 several checks share.
 
 Built-in check ids: ``schema``, ``integrity``, ``time-order``, ``nonnegative``,
-``conservation``, and the statistical checks ``steady-state``, ``boundary`` and
-``stationary-law``.
+``conservation``, and the statistical checks ``steady-state``, ``boundary``,
+``stationary-law``, ``drift`` and ``independence``.
 """
 
 from .analysis.window import Window, WindowSettings, stationary_window

@@ -26,7 +26,7 @@ import numpy as np
 from ..layout import sentinel
 from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic
-from ._kernels import Plan, reduce_chunk
+from ._kernels import Plan, Reduction, reduce_chunk
 
 __all__ = ["SnapshotStatistic", "SnapshotStats"]
 
@@ -90,8 +90,15 @@ class SnapshotStatistic(Statistic):
                 peer.plan, peer.fused = self.plan, True
                 return
 
+    def reduction(self, chunk: Chunk) -> Reduction:
+        """The per-snapshot reduction of ``chunk`` this statistic reads (totals, extrema,
+        sums of squares, occupied sites, positions of the largest mass), computed once per
+        chunk and worker thread: a statistic of the same pass that needs one of these
+        numbers while it reduces the chunk asks here rather than loop over it again."""
+        return reduce_chunk(chunk, self.plan)
+
     def chunk(self, chunk: Chunk) -> Any:
-        red = reduce_chunk(chunk, self.plan)
+        red = self.reduction(chunk)
         volume = int(np.prod(chunk.mass.shape[1:]))
 
         def loc(flat: int) -> Location | None:

@@ -1,5 +1,6 @@
 """The built-in checks, one module per simple check and one package per check that brings
-its own statistic or test (:mod:`.boundary`, :mod:`.stationary_law`).
+its own statistic or test (:mod:`.boundary`, :mod:`.stationary_law`, :mod:`.drift`,
+:mod:`.independence`).
 
 :func:`builtin_checks` is the one place they are registered from: the check registry
 calls it on its first listing, and an import error here propagates (a broken built-in
@@ -17,6 +18,8 @@ def builtin_checks() -> tuple[type[Check], ...]:
     """The built-in checks, in report order (basic checks first, statistical ones after)."""
     from .boundary import BoundaryCheck
     from .conservation import ConservationCheck
+    from .drift import DriftCheck
+    from .independence import IndependenceCheck
     from .integrity import IntegrityCheck
     from .nonnegative import NonNegativeCheck
     from .schema import SchemaCheck
@@ -33,4 +36,6 @@ def builtin_checks() -> tuple[type[Check], ...]:
         SteadyStateCheck,
         BoundaryCheck,
         StationaryLawCheck,
+        DriftCheck,
+        IndependenceCheck,
     )

@@ -18,12 +18,14 @@ class _Frozen(BaseModel):
 
 
 class Where(_Frozen):
-    """Location of the first offending item, when there is one."""
+    """Location of the first offending item, when there is one. ``axis`` names a lattice
+    axis as the ``mass`` array's dimension does (``site`` in 1D, ``y`` or ``x`` in 2D)."""
 
     replica: int | None = None
     snapshot: int | None = None
     site: int | list[int] | None = None
     chunk: str | None = None
+    axis: str | None = None
 
 
 class CheckResult(_Frozen):

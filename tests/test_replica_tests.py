@@ -1,0 +1,123 @@
+"""Replica mean test and pair product test against scipy.stats and exact results.
+
+Outside truth:
+* for independent draws the mean test is the one-sample t test (scipy.stats.ttest_1samp);
+* an AR(1) series with coefficient phi has statistical inefficiency (1 + phi) / (1 - phi)
+  (from memory: the sum of its autocorrelations phi^|k|);
+* under the null, p-values are uniform: rejection rates at 5% stay inside the
+  Clopper-Pearson interval that a correct test would give (scipy.stats.binomtest);
+* E[P_rq] = 0 for exchangeable replicas (the algebra of the module docstring), checked by
+  averaging over many independent sets of replicas.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from massarc.validators.analysis.replica_tests import (
+    _deviations,
+    copy_p_value,
+    pair_product_test,
+    pair_tests,
+    replica_mean_test,
+)
+
+
+def _ar1(rng: np.random.Generator, shape: tuple[int, ...], phi: float, noise=None) -> np.ndarray:
+    e = rng.standard_normal(shape) if noise is None else noise
+    x = np.empty(shape)
+    x[..., 0] = e[..., 0] / np.sqrt(1 - phi**2)
+    for t in range(1, shape[-1]):
+        x[..., t] = phi * x[..., t - 1] + e[..., t]
+    return x
+
+
+def test_independent_draws_give_the_one_sample_t_test():
+    rng = np.random.default_rng(1)
+    y = rng.normal(0.08, 1.0, size=3000)
+    ours = replica_mean_test(y[None, :])
+    ref = stats.ttest_1samp(y, 0.0)
+    assert ours.g < 1.2  # independent draws: Sokal's g stays near 1
+    assert ours.z == pytest.approx(ref.statistic / np.sqrt(ours.g), rel=1e-9)
+    assert ours.p == pytest.approx(2 * stats.t.sf(abs(ours.z), ours.ess - 1), rel=1e-9)
+
+
+def test_an_ar1_series_has_its_statistical_inefficiency():
+    rng = np.random.default_rng(2)
+    phi = 0.8
+    y = _ar1(rng, (4, 20000), phi)
+    g = replica_mean_test(y).g
+    assert g == pytest.approx((1 + phi) / (1 - phi), rel=0.15)
+
+
+def test_null_rejection_rate_is_nominal_for_autocorrelated_replicas():
+    rng = np.random.default_rng(3)
+    rejected = sum(replica_mean_test(_ar1(rng, (4, 400), 0.6)).p < 0.05 for _ in range(400))
+    # a correct test rejects Binomial(400, 0.05) times: its central 99.9% range
+    assert stats.binom.ppf(0.0005, 400, 0.05) <= rejected <= stats.binom.ppf(0.9995, 400, 0.05)
+
+
+def test_overlapping_values_are_capped_by_their_independent_count():
+    rng = np.random.default_rng(4)
+    walk = np.cumsum(rng.standard_normal((4, 330)), axis=1)
+    overlapping = walk[:, 30:] - walk[:, :-30]  # sums over 30 steps, one start apart
+    free = replica_mean_test(overlapping)
+    capped = replica_mean_test(overlapping, independent=300 / 30)
+    assert capped.ess <= 4 * 10 + 1e-9
+    assert capped.ess < free.ess
+    assert not capped.reliable or capped.ess / 4 >= 10
+
+
+def test_pair_products_have_mean_zero_for_exchangeable_replicas():
+    rng = np.random.default_rng(5)
+    means = []
+    for _ in range(300):
+        trend = np.linspace(0, 3, 60)  # a course shared by every replica
+        x = trend + rng.standard_t(3, size=(4, 60))  # heavy tails
+        d, shared = _deviations(x[:, :, None], 4)
+        means.append(((d[0] * d[1]).sum(-1) + shared).mean())
+    means = np.array(means)
+    assert abs(means.mean()) < 4 * means.std(ddof=1) / np.sqrt(len(means))
+
+
+def test_pair_test_false_alarms_are_rare_and_shared_noise_is_caught():
+    rng = np.random.default_rng(6)
+    worst = []
+    for _ in range(100):
+        relax = 5 * np.exp(-np.arange(300) / 50.0)  # a relaxation shared by every replica
+        x = relax + _ar1(rng, (4, 300), 0.7, noise=rng.standard_t(3, size=(4, 300)))
+        worst.append(min(t.p for t in pair_product_test(x)))
+    # Bonferroni over 6 pairs at 1%: a correct test fails at most about 1% of such runs
+    fails = sum(6 * p < 0.01 for p in worst)
+    assert fails <= stats.binom.ppf(0.999, 100, 0.01)
+    shared = rng.standard_normal((1, 300))
+    noise = rng.standard_normal((4, 300))
+    noise[1] = 0.6 * shared[0] + 0.8 * noise[1]
+    noise[3] = 0.6 * shared[0] + 0.8 * noise[3]
+    tests = {(t.first, t.second): t for t in pair_product_test(_ar1(rng, (4, 300), 0.5, noise))}
+    assert tests[(1, 3)].p < 1e-6
+    assert max(t.p for k, t in tests.items() if k != (1, 3)) > 1e-3
+
+
+def test_a_copy_is_detectable_on_moving_data_and_not_on_frozen_data():
+    rng = np.random.default_rng(7)
+    moving = _ar1(rng, (4, 500), 0.5)
+    assert copy_p_value(moving) < 1e-10
+    frozen = np.zeros((4, 500))
+    frozen[:, 250] = 1.0
+    assert copy_p_value(frozen) > 1e-4
+
+
+def test_two_replicas_are_compared_only_when_stationary():
+    x = np.random.default_rng(8).standard_normal((2, 100))
+    assert pair_product_test(x) == []
+    assert len(pair_product_test(x, stationary=True)) == 1
+
+
+def test_pair_tests_are_the_pair_test_and_the_copy_p_value_together():
+    x = _ar1(np.random.default_rng(9), (4, 200), 0.5)
+    tests, copy = pair_tests(x)
+    assert tests == pair_product_test(x) and copy == copy_p_value(x)
+    assert pair_tests(x[:2]) == ([], 1.0)  # two replicas of a transient: not compared

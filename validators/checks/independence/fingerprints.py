@@ -1,0 +1,301 @@
+"""64-bit fingerprints of every snapshot, for finding repeated snapshots: ``fingerprints``.
+
+The statistic of the ``independence`` check, which brings it itself
+(``IndependenceCheck.provides``).
+
+Per (replica, snapshot) four 64-bit numbers, all of the form mix(sum_j k_j m_j mod 2^64)
+with fixed pseudo-random odd keys k_j and the splitmix64 finaliser ``mix``:
+
+``sparse``
+    over up to ``probes`` (default 64) fixed sites spread over the lattice: equal for
+    identical snapshots, different for different ones unless they agree at every probe;
+``anchored``
+    the same at sites placed relative to the *anchor*, the first site holding the
+    largest mass: a copy of a snapshot rolled along the lattice (a cyclic shift along
+    each axis) gets the same value as the original whenever the largest mass sits at a
+    single site (the anchor then moves with the roll);
+``full`` and ``full_anchored``
+    over every site, with keys indexed from the origin and from the anchor (two
+    different snapshots collide with probability about 2^-64), computed only at a
+    pseudo-random subset of the snapshot indices, the same in every replica (see
+    :func:`massarc.archive.stats.sampling.hashed_subset`): the exact confirmation of
+    the matches the sparse hashes propose.
+
+Cost: two probe sums touch ``2 * probes`` values per snapshot; the anchor is the position
+of the largest mass the ``snapshots`` statistic computes anyway (its reduction of the
+chunk is shared when both run in one pass: :meth:`SnapshotStatistic.reduction`); the full
+hashes touch every site of the subset, whose density is
+``fraction`` (default 1/64) or more on small runs (``floor``, default 2**23 site visits).
+One compiled loop does it all (numba); without numba, or with ``MASSARC_PURE=1``, NumPy
+gives the same numbers (wrapping uint64 arithmetic on both paths).
+
+>>> import numpy as np
+>>> from types import SimpleNamespace
+>>> run = SimpleNamespace(n_replicas=2, n_snapshots=1, sites=(6,), dtype=np.dtype("uint8"))
+>>> from massarc.archive import Chunk
+>>> stat = FingerprintStatistic(run)
+>>> for r, row in enumerate([[0, 5, 1, 0, 2, 0], [0, 2, 0, 0, 5, 1]]):  # a roll by 3
+...     c = Chunk(r, 0, 1, np.array([row], np.uint8)); stat.merge(c, stat.chunk(c))
+>>> fp = stat.finish([])
+>>> bool(fp.anchored[0, 0] == fp.anchored[1, 0]), bool(fp.sparse[0, 0] == fp.sparse[1, 0])
+(True, False)
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from massarc.archive.reader import Chunk, ChunkRef
+from massarc.archive.scan import ChunkFault, Statistic
+from massarc.archive.stats import SnapshotStatistic
+from massarc.archive.stats.sampling import hashed_subset, sample_count
+
+try:  # numba is the optional `fast` extra; without it the NumPy path below is used
+    from numba import njit
+except ImportError:  # pragma: no cover - exercised only without numba
+    njit = None
+
+__all__ = ["FingerprintStatistic", "FingerprintStats", "mix64", "probe_offsets"]
+
+_M1 = np.uint64(0xBF58476D1CE4E5B9)
+_M2 = np.uint64(0x94D049BB133111EB)
+_S30, _S27, _S31 = np.uint64(30), np.uint64(27), np.uint64(31)
+
+
+def mix64(x: np.ndarray) -> np.ndarray:
+    """The splitmix64 finaliser, element-wise on uint64 (wrapping arithmetic)."""
+    x = np.asarray(x, dtype=np.uint64)
+    x = (x ^ (x >> _S30)) * _M1
+    x = (x ^ (x >> _S27)) * _M2
+    return x ^ (x >> _S31)
+
+
+def _keys(n: int, salt: int) -> np.ndarray:
+    """``n`` fixed pseudo-random odd 64-bit keys."""
+    return mix64(np.arange(n, dtype=np.uint64) + np.uint64(salt)) | np.uint64(1)
+
+
+def probe_offsets(sites: tuple[int, ...], probes: int) -> np.ndarray:
+    """Up to ``probes`` offsets ``(probe, axis)`` spread evenly over the lattice."""
+    if len(sites) == 1:
+        k = min(probes, sites[0])
+        return np.unique(np.linspace(0, sites[0] - 1, k).round().astype(np.int64))[:, None]
+    per = max(1, math.isqrt(probes))
+    ys = np.unique(np.linspace(0, sites[0] - 1, min(per, sites[0])).round().astype(np.int64))
+    xs = np.unique(np.linspace(0, sites[1] - 1, min(per, sites[1])).round().astype(np.int64))
+    return np.stack(np.meshgrid(ys, xs, indexing="ij"), axis=-1).reshape(-1, 2)
+
+
+@dataclass(frozen=True)
+class FingerprintStats:
+    """Arrays ``(replica, snapshot)``; ``valid`` is False where the chunk was unreadable.
+    ``full`` and ``full_anchored`` hold 0 where ``sampled`` (per snapshot) is False.
+    ``anchor`` is the flat (C-order) index of the first largest mass."""
+
+    sparse: np.ndarray
+    anchored: np.ndarray
+    anchor: np.ndarray
+    full: np.ndarray
+    full_anchored: np.ndarray
+    sampled: np.ndarray
+    valid: np.ndarray
+    sites: tuple[int, ...]
+
+
+class FingerprintStatistic(Statistic):
+    """The ``fingerprints`` statistic (see the module docstring)."""
+
+    name = "fingerprints"
+
+    def __init__(self, run: Any, **options: Any) -> None:
+        super().__init__(run, **options)
+        self.sites = tuple(int(s) for s in run.sites)
+        n_rep, n_snap = int(run.n_replicas), int(run.n_snapshots)
+        volume = math.prod(self.sites) if self.sites else 0
+        probes = int(options.get("probes", 64))
+        if probes < 1:
+            raise ValueError(f"fingerprints: expected probes >= 1; got {probes}")
+        self.offsets = probe_offsets(self.sites, probes) if volume else np.zeros((0, 1), int)
+        self.probe_keys = _keys(len(self.offsets), 0x5EED)
+        self.site_keys = _keys(volume, 0xF011).reshape(self.sites) if volume else np.zeros(0)
+        # the kernels see every lattice as 2D: (1, L) in 1D
+        self.sites2 = np.array((1, *self.sites) if len(self.sites) == 1 else self.sites, np.int64)
+        off = self.offsets if self.offsets.shape[1] == 2 else np.c_[0 * self.offsets, self.offsets]
+        self.offsets2 = np.ascontiguousarray(off, dtype=np.int64)
+        count = sample_count(
+            n_snap,
+            n_rep,
+            volume,
+            fraction=float(options.get("fraction", 1 / 64)),
+            floor_values=int(options.get("floor", 2**23)),
+            cap_total=2**62,
+        )
+        self.fraction = count / n_snap if n_snap else 1.0
+        self.sampled = hashed_subset(np.arange(n_snap), self.fraction, salt=0xC0DE)
+        shape2 = (n_rep, n_snap)
+        self._out = {
+            k: np.zeros(shape2, np.uint64) for k in ("sparse", "anchored", "full", "full_anchored")
+        }
+        self._anchor = np.full(shape2, -1, np.int64)
+        self._valid = np.zeros(shape2, bool)
+        self.moments = SnapshotStatistic(run)  # gives the anchors; replaced by a peer's
+
+    def prepare(self, peers: list[Statistic]) -> None:
+        """Take the anchors from the ``snapshots`` statistic's reduction when it runs too."""
+        for peer in peers:
+            if isinstance(peer, SnapshotStatistic):
+                self.moments = peer
+                return
+
+    def chunk(self, chunk: Chunk) -> Any:
+        mass = np.asarray(chunk.mass)
+        n = len(mass)
+        if n == 0 or not self.sites:
+            return None
+        rows = mass.reshape(n, -1)
+        if rows.dtype.kind == "f":
+            rows = np.nan_to_num(rows).astype(np.int64)
+        elif rows.dtype.kind == "b":
+            rows = rows.astype(np.uint8)
+        anchor = np.ascontiguousarray(self.moments.reduction(chunk).argmax, dtype=np.int64)
+        sampled = np.ascontiguousarray(self.sampled[chunk.start : chunk.stop])
+        args = (
+            np.ascontiguousarray(rows),
+            anchor,
+            sampled,
+            self.offsets2,
+            self.sites2,
+            self.probe_keys,
+            self.site_keys.reshape(-1),
+        )
+        hashes = _hash_numba(*args) if _use_numba() else _hash_numpy(*args)
+        return (*hashes, anchor)
+
+    def merge(self, ref: ChunkRef, partial: Any) -> None:
+        if partial is None:
+            return
+        sl = (ref.replica, slice(ref.start, ref.stop))
+        sparse, anchored, full, full_anchored, anchor = partial
+        self._out["sparse"][sl] = sparse
+        self._out["anchored"][sl] = anchored
+        self._out["full"][sl] = full
+        self._out["full_anchored"][sl] = full_anchored
+        self._anchor[sl] = anchor
+        self._valid[sl] = True
+
+    def finish(self, faults: list[ChunkFault]) -> FingerprintStats:
+        o = self._out
+        return FingerprintStats(
+            o["sparse"],
+            o["anchored"],
+            self._anchor,
+            o["full"],
+            o["full_anchored"],
+            self.sampled,
+            self._valid,
+            self.sites,
+        )
+
+
+def _use_numba() -> bool:
+    """The compiled kernel, unless numba is missing or ``MASSARC_PURE=1``."""
+    return njit is not None and os.environ.get("MASSARC_PURE", "") not in ("1", "true", "yes")
+
+
+def _as_u64(v: np.ndarray) -> np.ndarray:
+    return v.astype(np.int64).view(np.uint64)
+
+
+def _hash_numpy(
+    rows: np.ndarray,
+    anchor: np.ndarray,
+    sampled: np.ndarray,
+    offsets: np.ndarray,
+    sites: np.ndarray,
+    probe_keys: np.ndarray,
+    site_keys: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The four hashes of every row (module docstring), NumPy only."""
+    ly, lx = int(sites[0]), int(sites[1])
+    n = len(rows)
+    sparse_at = offsets[:, 0] * lx + offsets[:, 1]
+    sparse = mix64((_as_u64(rows[:, sparse_at]) * probe_keys).sum(axis=1, dtype=np.uint64))
+    ay, ax = anchor // lx, anchor % lx
+    py = (ay[:, None] + offsets[None, :, 0]) % ly
+    px = (ax[:, None] + offsets[None, :, 1]) % lx
+    probes = np.take_along_axis(rows, py * lx + px, axis=1)
+    anchored = mix64((_as_u64(probes) * probe_keys).sum(axis=1, dtype=np.uint64))
+    full = np.zeros(n, np.uint64)
+    full_anchored = np.zeros(n, np.uint64)
+    picked = np.flatnonzero(sampled)
+    if len(picked):
+        v = _as_u64(rows[picked])
+        full[picked] = mix64((v * site_keys).sum(axis=1, dtype=np.uint64))
+        yy, xx = np.divmod(np.arange(ly * lx), lx)
+        ky = (yy[None, :] - ay[picked, None]) % ly
+        kx = (xx[None, :] - ax[picked, None]) % lx
+        rolled = site_keys[ky * lx + kx]
+        full_anchored[picked] = mix64((v * rolled).sum(axis=1, dtype=np.uint64))
+    return sparse, anchored, full, full_anchored
+
+
+if njit is not None:
+
+    @njit(cache=True, nogil=True, inline="always")
+    def _mix_one(x):  # pragma: no cover - compiled
+        x = (x ^ (x >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+        x = (x ^ (x >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+        return x ^ (x >> np.uint64(31))
+
+    @njit(cache=True, nogil=True, boundscheck=False)
+    def _hash_numba(
+        rows, anchor, sampled, offsets, sites, probe_keys, site_keys
+    ):  # pragma: no cover - compiled
+        n, volume = rows.shape
+        ly, lx = sites[0], sites[1]
+        k = offsets.shape[0]
+        sparse = np.zeros(n, np.uint64)
+        anchored = np.zeros(n, np.uint64)
+        full = np.zeros(n, np.uint64)
+        full_anchored = np.zeros(n, np.uint64)
+        for i in range(n):
+            ay, ax = anchor[i] // lx, anchor[i] % lx
+            h1 = np.uint64(0)
+            h2 = np.uint64(0)
+            for j in range(k):
+                oy, ox = offsets[j, 0], offsets[j, 1]
+                h1 += np.uint64(np.int64(rows[i, oy * lx + ox])) * probe_keys[j]
+                py = ay + oy
+                if py >= ly:
+                    py -= ly
+                px = ax + ox
+                if px >= lx:
+                    px -= lx
+                h2 += np.uint64(np.int64(rows[i, py * lx + px])) * probe_keys[j]
+            sparse[i] = _mix_one(h1)
+            anchored[i] = _mix_one(h2)
+            if sampled[i]:
+                f1 = np.uint64(0)
+                f2 = np.uint64(0)
+                for s in range(volume):
+                    f1 += np.uint64(np.int64(rows[i, s])) * site_keys[s]
+                for y in range(ly):
+                    ky = y - ay
+                    if ky < 0:
+                        ky += ly
+                    for x in range(lx):
+                        kx = x - ax
+                        if kx < 0:
+                            kx += lx
+                        f2 += np.uint64(np.int64(rows[i, y * lx + x])) * site_keys[ky * lx + kx]
+                full[i] = _mix_one(f1)
+                full_anchored[i] = _mix_one(f2)
+        return sparse, anchored, full, full_anchored
+
+else:  # pragma: no cover - exercised only without numba
+    _hash_numba = _hash_numpy
