@@ -1,8 +1,10 @@
 """massarc.simulate: reference samplers for the ZRP and the CMAM.
 
 * :func:`simulate`: continuous-time dynamics, exact at the snapshot times, on 1D or 2D
-  lattices with periodic axes or reflecting walls, many seeded replicas, streamed into an
-  archive; or independent exact steady-state samples (``exact=True``, ZRP);
+  lattices with periodic, reflecting or open axes, many seeded replicas, streamed into an
+  archive; or independent exact steady-state samples (``exact=True``, ZRP); with
+  ``transfers=True`` also the net mass moved across every bond between snapshots
+  (:class:`Trajectory`);
 * :func:`sample_steady_state`: exact samples of the canonical ZRP steady state;
 * :func:`snapshot_times`, :func:`replica_seeds`: the times and the per-replica seeds.
 
@@ -17,7 +19,7 @@ or with ``MASSARC_PURE=1``, the same code runs in pure Python with identical res
 (1, 3, 8, 8)
 """
 
-from .driver import SIMULATOR_NAME, simulate
+from .driver import SIMULATOR_NAME, Trajectory, simulate
 from .errors import SamplerError
 from .exact import SteadyStateSampler, sample_steady_state
 from .initial import INITIAL_KINDS
@@ -28,6 +30,7 @@ __all__ = [
     "SIMULATOR_NAME",
     "SamplerError",
     "SteadyStateSampler",
+    "Trajectory",
     "replica_seeds",
     "sample_steady_state",
     "simulate",

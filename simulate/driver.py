@@ -7,7 +7,7 @@ import importlib.metadata
 import numbers
 from collections.abc import Sequence
 from datetime import UTC, datetime
-from typing import Any, Literal
+from typing import Any, Literal, NamedTuple
 
 import numpy as np
 
@@ -21,10 +21,31 @@ from .exact import SteadyStateSampler
 from .initial import INITIAL_KINDS, guard_product_measure, initial_masses
 from .times import check_times, replica_seeds
 
-__all__ = ["SIMULATOR_NAME", "simulate"]
+__all__ = ["SIMULATOR_NAME", "Trajectory", "simulate"]
 
 #: ``simulator.name`` recorded in the metadata of every run written here.
 SIMULATOR_NAME = "massarc.simulate"
+
+#: Masses of open runs are stored as uint32 (they are not bounded by the initial total).
+_OPEN_DTYPE = np.dtype(np.uint32)
+
+
+class Trajectory(NamedTuple):
+    """What :func:`simulate` returns with ``transfers=True``.
+
+    ``transfers[r, k, a, ...]`` is the net mass moved from each site to its +1 neighbour
+    along axis ``a`` (minus the mass moved back) between snapshot ``k - 1`` and snapshot
+    ``k`` (for ``k = 0``: between t = 0 and the first snapshot), counted move by move; the
+    seam bond of a periodic axis is the entry of its last site, and the entry of the last
+    site of a reflecting or open axis stays 0. ``inflow``/``outflow`` (replica, time) are
+    the units that entered and left through open ends since the first snapshot (zeros on
+    closed lattices).
+    """
+
+    mass: np.ndarray | Run
+    transfers: np.ndarray
+    inflow: np.ndarray
+    outflow: np.ndarray
 
 
 def _version() -> str | None:
@@ -59,7 +80,7 @@ def _total_mass(meta: RunMeta, mass: int | None) -> int:
 
 def _written_meta(
     meta: RunMeta,
-    mass: int,
+    mass: int | None,
     seeds: list[int],
     initial: InitialCondition,
     times: np.ndarray,
@@ -68,7 +89,7 @@ def _written_meta(
     run = meta.run.model_copy(
         update={
             "total_mass": mass,
-            "density": mass / meta.lattice.volume,
+            "density": None if mass is None else mass / meta.lattice.volume,
             "seeds": seeds,
             "initial": initial,
             "sampling": _spacing(times),
@@ -99,14 +120,18 @@ def simulate(
     progress: Progress | None = None,
     pure: bool | None = None,
     command: str | None = None,
-) -> np.ndarray | Run:
+    transfers: bool = False,
+) -> np.ndarray | Run | Trajectory:
     """Simulate ``replicas`` replicas of the model in ``meta``, observed at ``times``.
 
     Parameters
     ----------
     meta
-        Metadata: a ZRP or CMAM model on a 1D or 2D lattice, each axis periodic or reflecting
-        (a move into a reflecting wall is suppressed: the mass stays).
+        Metadata: a ZRP or CMAM model on a 1D or 2D lattice, each axis periodic, reflecting
+        (a move into a reflecting wall is suppressed: the mass stays) or open (hops across
+        the ends are suppressed; a unit enters every site at position 0 of the axis at rate
+        ``lattice.open.injection`` and leaves every non-empty site at its last position at
+        rate ``lattice.open.extraction``; the archive then holds ``inflow``/``outflow``).
     times
         Strictly increasing snapshot times >= 0 (see :func:`snapshot_times`). The replicas
         start at t = 0; a snapshot at t = 0 is the initial condition.
@@ -117,7 +142,8 @@ def simulate(
         themselves (then ``replicas == len(seeds)``): replica r of a run is reproduced
         alone with ``seeds=[run.meta.run.seeds[r]]``.
     mass
-        Total mass per replica (default: ``meta.run.total_mass``).
+        Total mass per replica (default: ``meta.run.total_mass``); the initial mass of an
+        open lattice (its archive then declares no total mass).
     initial
         ``random``, ``uniform``, ``condensed`` or ``steady-state`` (exact canonical sample;
         a ZRP on a periodic lattice, or a symmetric ZRP with walls).
@@ -135,13 +161,17 @@ def simulate(
         when installed unless ``MASSARC_PURE=1``.
     command
         The command line, recorded in ``simulator.command``.
+    transfers
+        Also return the net mass moved across every bond in every snapshot interval,
+        counted move by move (see :class:`Trajectory`; held in memory, int64).
 
     Returns
     -------
-    numpy.ndarray or Run
+    numpy.ndarray or Run or Trajectory
         ``(replica, time, *lattice)`` masses when ``location`` is None, else the run written
         (opened for reading). With an archive only one chunk of snapshots per replica is held
-        in memory at a time, all replicas in lockstep.
+        in memory at a time, all replicas in lockstep. With ``transfers=True``, a
+        :class:`Trajectory` holding that and the transfers.
 
     Examples
     --------
@@ -166,6 +196,8 @@ def simulate(
             )
     if exact or initial == "steady-state":
         guard_product_measure(meta)
+    if exact and transfers:
+        raise SamplerError("transfers: expected the dynamics; got exact=True (no moves)")
     if exact:
         condition = InitialCondition(
             kind="steady-state",
@@ -176,11 +208,14 @@ def simulate(
         condition = InitialCondition(kind=initial)  # type: ignore[arg-type]
     else:
         raise SamplerError(f"initial: expected one of {', '.join(INITIAL_KINDS)}; got {initial!r}")
+    declared = total if meta.lattice.closed else None
     try:
-        out_meta = _written_meta(meta, total, seed_list, condition, t, command)
+        out_meta = _written_meta(meta, declared, seed_list, condition, t, command)
     except MetadataError as exc:  # pragma: no cover - inputs were validated above
         raise SamplerError(str(exc)) from None
-    return _run(out_meta, t, total, seed_list, exact, location, overwrite, progress, pure)
+    return _run(
+        out_meta, t, total, seed_list, exact, location, overwrite, progress, pure, transfers
+    )
 
 
 def _run(
@@ -193,10 +228,13 @@ def _run(
     overwrite: bool,
     progress: Progress | None,
     pure: bool | None,
-) -> np.ndarray | Run:
+    transfers: bool,
+) -> np.ndarray | Run | Trajectory:
     lattice = tuple(meta.lattice.sites)
     n_sites = meta.lattice.volume
-    dtype = mass_dtype(total)
+    ndim = meta.lattice.ndim
+    closed = meta.lattice.closed
+    dtype = mass_dtype(total) if closed else _OPEN_DTYPE
     rngs = [np.random.default_rng(s) for s in seeds]
     sampler = None
     if exact or (meta.run.initial is not None and meta.run.initial.kind == "steady-state"):
@@ -219,7 +257,11 @@ def _run(
         else create_run(location, meta, overwrite=overwrite, dtype=dtype, snapshots_hint=len(t))
     )
     memory = np.empty((n_rep, len(t), *lattice), dtype=dtype) if writer is None else None
+    track = transfers or not closed
+    flows = np.zeros((n_rep, len(t), ndim, *lattice), np.int64) if transfers else None
+    io = np.zeros((n_rep, len(t), 2), np.int64)
     buf = np.empty((piece, n_sites), dtype=np.int64)
+    flow_buf = np.empty((piece, ndim * n_sites), dtype=np.int64)
     done = 0
     # the writer's context marks the run complete on success and leaves it incomplete
     # (with every committed snapshot readable) when anything goes wrong
@@ -234,16 +276,34 @@ def _run(
                     rows = sampler.sample(stop - start, rngs[r])
                 else:
                     rows = buf[: stop - start]
-                    reps[r].advance(dts, rows)
+                    if track:
+                        fl = flow_buf[: stop - start]
+                        reps[r].advance(dts, rows, fl, io[r, start:stop])
+                        if flows is not None:
+                            flows[r, start:stop] = fl.reshape(stop - start, ndim, *lattice)
+                    else:
+                        reps[r].advance(dts, rows)
+                if not closed and rows.max(initial=0) >= np.iinfo(dtype).max:
+                    raise SamplerError(
+                        f"replica {r}: a site holds {int(rows.max())} units, more than "
+                        f"{dtype} stores; lower lattice.open.injection"
+                    )
                 block[r] = rows.reshape(stop - start, *lattice)
                 done += stop - start
                 if progress is not None:
                     progress(done, work, "snapshots")
+            cum = io[:, start:stop] - io[:, :1]  # since the first snapshot (FORMAT.md 2.3)
             if writer is not None:
-                writer.append(t[start:stop], block)
+                if closed:
+                    writer.append(t[start:stop], block)
+                else:
+                    writer.append(t[start:stop], block, inflow=cum[..., 0], outflow=cum[..., 1])
             else:
                 assert memory is not None
                 memory[:, start:stop] = block
-    if memory is not None:
-        return memory
-    return open_run(location)
+    result: np.ndarray | Run = memory if memory is not None else open_run(location)
+    if not transfers:
+        return result
+    assert flows is not None
+    since = io - io[:, :1]
+    return Trajectory(result, flows, since[..., 0], since[..., 1])

@@ -27,6 +27,10 @@ def guard_product_measure(meta: RunMeta) -> None:
         raise MetadataError(
             [f"model.family: expected zrp for an exact steady state; got {model.family}"]
         )
+    if "open" in lattice.boundary:
+        raise MetadataError(
+            ["lattice.boundary: expected no open axis for an exact steady state; got open"]
+        )
     walls = "reflecting" in lattice.boundary
     if walls and model.right_probability != 0.5:
         raise MetadataError(

@@ -9,6 +9,11 @@ and pure paths give bit-identical trajectories.
 Each attempt ``i`` uses one site index ``sites[i]`` (uniform over the lattice) and one
 uniform ``unif[i]`` in [0, 1). With ``x = unif[i] * rate_max``:
 
+* ``x >= hop_max`` (open axes only; closed lattices have ``rate_max == hop_max``): a
+  reservoir attempt. ``y = x - hop_max`` picks an open axis (``y // (alpha + beta)``) and
+  then injection (the first ``alpha`` of its slot: one unit enters the site if it is at
+  position 0 along that axis) or extraction (one unit leaves the site if it is at the last
+  position along that axis and not empty);
 * ZRP (``family == 0``): the move happens when ``x < u(m)``; then ``v = x / u(m)`` is again
   uniform in [0, 1) and chooses the direction;
 * CMAM (``family == 1``): ``x < D`` moves the whole mass (``v = x / D``), otherwise one unit
@@ -16,7 +21,13 @@ uniform ``unif[i]`` in [0, 1). With ``x = unif[i] * rate_max``:
 
 In 1D the move goes to the +1 neighbour when ``v < right_probability``; in 2D ``2 v`` picks the axis
 (its integer part) and the direction (its fraction against ``right_probability``). A move towards a
-reflecting wall has neighbour -1 in the table and is suppressed: the mass stays.
+reflecting wall (or the end of an open axis) has neighbour -1 in the table and is
+suppressed: the mass stays.
+
+On request (``track``) the loop also counts, move by move, the net mass moved across every
+bond: ``flow[axis * N + s]`` is the mass moved from site ``s`` to its +1 neighbour along
+``axis`` minus the mass moved back (the seam bond of a periodic axis is the one of its last
+site), and ``io`` the cumulative units injected and extracted.
 """
 
 from __future__ import annotations
@@ -59,26 +70,66 @@ def event_loop_py(
     sites: np.ndarray,
     unif: np.ndarray,
     stops: np.ndarray,
+    hop_max: float,
+    alpha: float,
+    beta: float,
+    open_axes: np.ndarray,
+    strides: np.ndarray,
+    lengths: np.ndarray,
+    track: bool,
+    flow: np.ndarray,
+    flow_out: np.ndarray,
+    io: np.ndarray,
+    io_out: np.ndarray,
 ) -> None:
     """Perform ``len(sites)`` attempts on ``mass`` (flat, int64), in place.
 
     ``stops`` (sorted, values in 0..len(sites)) says when to record: ``out[j]`` receives a
     copy of ``mass`` just before attempt ``stops[j]`` (after the last one when
     ``stops[j] == len(sites)``). ``rates`` holds u(0..K) with u(k) = u(K) beyond K.
+
+    Open axes: ``open_axes`` lists them; ``strides`` and ``lengths`` give the flat stride and
+    length of every axis; ``rate_max = hop_max + len(open_axes) * (alpha + beta)``. ``io``
+    (2,) counts the units injected and extracted so far; at each stop ``io_out[j]`` receives
+    it (when ``track``).
+
+    When ``track``: ``flow`` (``ndim * N``) accumulates the net transfer across every bond
+    since the last stop; at each stop it is copied to ``flow_out[j]`` and reset.
     """
     n = len(sites)
     n_rec = len(stops)
     top = len(rates) - 1
+    n_sites = len(mass)
+    slot = alpha + beta
     j = 0
     for i in range(n):
         while j < n_rec and stops[j] == i:
             out[j, :] = mass
+            if track:
+                flow_out[j, :] = flow
+                flow[:] = 0
+                io_out[j, :] = io
             j += 1
         s = sites[i]
         m = mass[s]
+        x = unif[i] * rate_max
+        if x >= hop_max and len(open_axes) > 0:  # a reservoir attempt (open axes only)
+            y = x - hop_max
+            k = int(y / slot)
+            if k >= len(open_axes):
+                k = len(open_axes) - 1  # y rounded up to the top: keep the index in range
+            ax = open_axes[k]
+            pos = (s // strides[ax]) % lengths[ax]
+            if y - k * slot < alpha:
+                if pos == 0:
+                    mass[s] = m + 1
+                    io[0] += 1
+            elif m > 0 and pos == lengths[ax] - 1:
+                mass[s] = m - 1
+                io[1] += 1
+            continue
         if m == 0:
             continue
-        x = unif[i] * rate_max
         if family == 0:
             r = rates[m] if m < top else rates[top]
             if x >= r:
@@ -104,8 +155,17 @@ def event_loop_py(
             continue
         mass[s] = m - amount
         mass[t] += amount
+        if track:
+            if col % 2 == 1:  # towards +1: the bond of the source site
+                flow[(col // 2) * n_sites + s] += amount
+            else:  # towards -1: the bond of the target site, crossed backwards
+                flow[(col // 2) * n_sites + t] -= amount
     while j < n_rec:
         out[j, :] = mass
+        if track:
+            flow_out[j, :] = flow
+            flow[:] = 0
+            io_out[j, :] = io
         j += 1
 
 
@@ -133,7 +193,8 @@ def event_loop(pure: bool | None = None) -> Callable[..., None]:
 
 def neighbour_table(sites: list[int], boundary: list[str]) -> np.ndarray:
     """``nbr[s, 2 * axis + d]``: the flat index of the neighbour of site ``s`` one step along
-    ``axis`` (d = 0: -1, d = 1: +1), or -1 where a reflecting wall suppresses the move.
+    ``axis`` (d = 0: -1, d = 1: +1), or -1 where a reflecting wall (or the end of an open
+    axis, where only the reservoirs act) suppresses the move.
 
     Sites are numbered in array order (2D: ``y * Lx + x``).
 
@@ -146,7 +207,7 @@ def neighbour_table(sites: list[int], boundary: list[str]) -> np.ndarray:
     for axis, (length, bound) in enumerate(zip(shape, boundary, strict=True)):
         for step in (-1, 1):
             moved = np.roll(index, -step, axis=axis)
-            if bound == "reflecting":
+            if bound in ("reflecting", "open"):
                 edge = [slice(None)] * len(shape)
                 edge[axis] = 0 if step == -1 else length - 1
                 moved[tuple(edge)] = -1

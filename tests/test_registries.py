@@ -29,7 +29,7 @@ from massarc.archive.stats import builtin_statistics
 from massarc.validators import Check, Option, register_check
 from massarc.validators.checks import builtin_checks
 from massarc.validators.checks.boundary import BoundaryCheck
-from massarc.validators.checks.boundary.increments import IncrementStatistic
+from massarc.validators.checks.boundary.transfers import TransferStatistic
 from massarc.validators.engine import registry as check_registry
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -288,8 +288,8 @@ def _check(**attrs):
             r"expected one of snapshots, histogram",
         ),
         (
-            {"needs": {"increments": {}}},  # boundary's own statistic is not global
-            r"Bad\.needs names the statistic 'increments'",
+            {"needs": {"transfers": {}}},  # boundary's own statistic is not global
+            r"Bad\.needs names the statistic 'transfers'",
         ),
         (
             {"requires": ("metadata", "database")},
@@ -321,14 +321,14 @@ def test_an_option_declares_a_type_its_default_has():
 
 
 def test_a_check_may_bring_its_own_statistic(plugins):
-    assert BoundaryCheck.statistic("increments") is IncrementStatistic
-    assert "increments" not in scan_module.available_statistics()
+    assert BoundaryCheck.statistic("transfers") is TransferStatistic
+    assert "transfers" not in scan_module.available_statistics()
 
     class Mine(Check):
         id = "test-mine"
         description = "reads boundary's statistic by bringing it"
-        needs: ClassVar = {"increments": {"blocks": 1}}
-        provides: ClassVar = (IncrementStatistic,)
+        needs: ClassVar = {"transfers": {"intervals": 16}}
+        provides: ClassVar = (TransferStatistic,)
 
         def run(self, ctx):
             return self.result("pass", "")

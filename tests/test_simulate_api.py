@@ -173,8 +173,8 @@ def test_batches_do_not_change_when_snapshots_are_taken(
 
 
 BAD_METADATA = [
-    (_meta(ZRP, [10], "open"), {}, "lattice.boundary: expected periodic or reflecting; got open"),
-    (_meta(ZRP, [4, 4], ["periodic", "open"]), {}, r"lattice.boundary\[1\]: expected periodic"),
+    (_meta(ZRP, [10], "open"), {}, "lattice.open: expected injection and extraction rates"),
+    (_meta(ZRP, [4, 4], ["periodic", "open"]), {}, "lattice.open: expected injection"),
     (parse_metadata({"model": {"family": "custom", "description": "own rules"},
                      "lattice": {"sites": [4], "boundary": "periodic"},
                      "run": {"regime": "transient"}}), {}, "expected zrp or cmam"),

@@ -81,7 +81,7 @@ BAD = [
      "expected one of --mass and --density; got --mass 5 and --density 1.0"),
     ([], "expected --mass or --density (or run.total_mass in the metadata); got none"),
     (["--mass", "5", "--set", "lattice.boundary=open"],
-     "lattice.boundary: expected periodic or reflecting; got open"),
+     "lattice.open: expected injection and extraction rates for the open axes; got none"),
     (["--mass", "5", "--set", "lattice.boundary=reflecting", "--initial", "steady-state"],
      "expected periodic axes for a steady-state start"),
     (["--mass", "5", "--set", "model.family=cmam"], "model.diffusion: required key is missing"),

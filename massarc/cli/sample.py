@@ -130,7 +130,8 @@ def command(
 
     Continuous-time dynamics observed exactly at the snapshot times, or with --exact
     independent samples of the ZRP steady state. A move into a reflecting wall is
-    suppressed; open boundaries are not simulated.
+    suppressed; an open axis (rates in lattice.open) exchanges units with reservoirs at
+    its ends, and the run then records inflow and outflow.
     """
     from massarc.simulate import SamplerError, simulate, snapshot_times
 

@@ -1,22 +1,31 @@
 """The ``boundary`` check: do the declared boundaries agree with the data?
 
-From snapshots (statistical; :mod:`.seam`). Along every axis
-of at least 8 sites, the seam pair (last site, site 0) is compared with interior bonds and
-with distant site pairs through the correlation of their sign increments between
-consecutive snapshots (the ``increments`` statistic):
+From snapshots (statistical; :mod:`.judge`, on the ``transfers`` statistic of
+:mod:`.transfers`, which the check brings itself). Consecutive
+snapshots give the net mass moved across every bond of an axis up to one constant per
+snapshot pair: zero behind walls, the inflow increment at an open end, the unknown seam
+transfer on a ring. Along every axis of at least 8 sites (in 2D, on the masses summed over
+the other axis):
 
-* periodic axis, H0 "the seam is a bond" (on a ring the seam is a translate of every
-  bond): fail when the seam correlation lies above the interior-bond correlations, or the
-  activity step across the seam is unlike the steps across bonds; one-sided and
-  two-sided prediction t-tests, Bonferroni-combined, p < ``alpha``;
-* reflecting or open axis, H0 "the seam is not a bond": fail when the seam correlation
-  lies below the distant-pair correlations (one-sided prediction t-test, with the seam's
-  own batch-means variance when it is larger), p < ``alpha``.
+* periodic axis, H0 "the axis is a ring": the seam is a translate of evenly spaced cut
+  bonds, so in each replica its rank among them, by how far its transfers stray from the
+  cuts' mean (or, where most of the axis is frozen, by the density step across it), is
+  uniform; fail when the seam ranks too low or too high in the replicas together (exact
+  two-sided p-value of a sum of uniform ranks), as a wall does;
+* reflecting or open axis, H0 "the reconstructed transfers are the true ones": two bonds
+  far apart compared with the spreading distance carry nearly independent transfers; fail
+  when their changes are more correlated than a stated tolerance (a ring's seam transfer,
+  or reservoir books that do not match, shifts every bond alike; one-sided batch-means
+  t-test on normal scores); with a declared total drift, also fail on any transfer against
+  the drift (exact).
 
-Under H0 a clean run fails with probability about ``alpha`` per axis. When bonds and
-distant pairs are too close for a seam of the other kind to be caught (snapshots too far
-apart to resolve single moves, or hardly any motion), the axis cannot be judged and the
-check warns, reporting the measured interior-bond correlation.
+Under H0 a clean run fails with probability at most about ``alpha`` per axis. An axis is
+judged (pass or fail) when a boundary of the other kind would be caught, or the data rule
+it out; otherwise it is not judged, and the check says why with the measured spreading
+distance and the axis length: snapshots so far apart that they are effectively independent
+samples (walls and a ring then look alike), mass that barely moves, a declared start that
+breaks the ring's symmetry, or an open axis without an inflow record. The check skips when
+no axis is judged.
 
 From the event log (exact; :mod:`.events`). When the run
 archives an ``events`` group, every move must join declared neighbours; the first that
@@ -34,8 +43,8 @@ from massarc.schema.spec import mass_dimensions
 from ...engine.registry import Check, CheckContext, Option
 from ...engine.result import CheckResult
 from .events import EventAudit, audit_events
-from .increments import MIN_LENGTH, IncrementStatistic, IncrementStats
-from .seam import SeamTest, seam_test
+from .judge import FLOOR, REACH, TOLERANCE, AxisVerdict, judge_axis
+from .transfers import MIN_LENGTH, TransferStatistic, TransferStats
 
 __all__ = ["BoundaryCheck"]
 
@@ -49,19 +58,36 @@ def _fmt(x: float) -> str:
 
 
 class BoundaryCheck(Check):
-    """Declared boundaries against the data: seam test per axis, exact event audit."""
+    """Declared boundaries against the data: transfer tests per axis, exact event audit."""
 
     id = "boundary"
-    description = "declared boundaries agree with the data (seam correlations, event log)"
-    needs: ClassVar = {"increments": {}}
-    provides: ClassVar = (IncrementStatistic,)
+    description = "declared boundaries agree with the data (bond transfers, event log)"
+    needs: ClassVar = {"transfers": {}}
+    provides: ClassVar = (TransferStatistic,)
     options: ClassVar = {
-        "alpha": Option(1e-4, float, "false-alarm rate of the seam test, per axis"),
+        "alpha": Option(1e-4, float, "false-alarm rate of each axis's test"),
         "margin": Option(
             2.0,
             float,
-            "an axis is judged only when a seam of the other kind would be caught even this "
-            "many standard deviations short of its mean",
+            "an axis is judged only when a boundary of the other kind would be caught by this "
+            "many standard errors to spare",
+        ),
+        "reach": Option(
+            REACH,
+            float,
+            "walls are tested only on bonds at least this many spreading distances apart",
+        ),
+        "tolerance": Option(
+            TOLERANCE,
+            float,
+            "correlation of the transfers at a third and two thirds of the axis tolerated "
+            "behind walls (a ring gives 1/2)",
+        ),
+        "floor": Option(
+            FLOOR,
+            float,
+            "the tolerated correlation shrinks with the distance in spreading distances, not "
+            "below this",
         ),
     }
 
@@ -70,9 +96,8 @@ class BoundaryCheck(Check):
         if meta is None:
             return self.result("skip", "no valid metadata: the declared boundaries are unknown")
         lattice = meta.lattice
-        alpha = float(ctx.options["alpha"])
-        margin = float(ctx.options["margin"])
-        thresholds = {"alpha": alpha, "margin": margin}
+        opts = {k: float(ctx.options[k]) for k in self.options}
+        thresholds = dict(opts)
         ndim = lattice.ndim
 
         audit = None
@@ -82,64 +107,65 @@ class BoundaryCheck(Check):
             if bad is not None:
                 return bad
 
-        inc: IncrementStats | None = ctx.stats.get("increments")
+        st: TransferStats | None = ctx.stats.get("transfers")
+        right_probability = getattr(meta.model, "right_probability", None)
         initial = meta.run.initial.kind if meta.run.initial is not None else None
-        tests: list[SeamTest] = []
+        invariant = initial != "condensed"
+        verdicts: list[AxisVerdict] = []
         notes: list[str] = []
         for axis, kind in enumerate(lattice.boundary):
-            name = _axis_name(axis, ndim)
-            data = inc.axes[axis] if inc is not None and axis < len(inc.axes) else None
+            data = st.axes[axis] if st is not None and axis < len(st.axes) else None
             if data is None:
-                notes.append(f"axis {name} has fewer than {MIN_LENGTH} sites: not tested")
+                notes.append(
+                    f"axis {_axis_name(axis, ndim)} has fewer than {MIN_LENGTH} sites: not tested"
+                )
                 continue
-            tests.append(
-                seam_test(data, kind, alpha=alpha, margin=margin, activity=initial != "condensed")
+            verdicts.append(
+                judge_axis(
+                    data,
+                    kind,
+                    alpha=opts["alpha"],
+                    margin=opts["margin"],
+                    reach=opts["reach"],
+                    tolerance=opts["tolerance"],
+                    floor=opts["floor"],
+                    right_probability=right_probability,
+                    invariant_start=invariant,
+                    stationary=meta.run.regime == "stationary",
+                )
             )
-        if initial == "condensed" and "periodic" in lattice.boundary:
-            notes.append("condensed start: activity steps not compared")
-
-        values: dict[str, Any] = {"axes": [t.values() for t in tests]}
+        values: dict[str, Any] = {"axes": [v.values for v in verdicts]}
         if audit is not None:
             values["events"] = audit.events
-        finite = [t.p_value for t in tests if math.isfinite(t.p_value)]
+        finite = [v.p_value for v in verdicts if math.isfinite(v.p_value)]
         values["p_value"] = min(finite) if finite else None
-        suffix = f" ({'; '.join(notes)})" if notes else ""
 
-        failed = [t for t in tests if math.isfinite(t.p_value) and t.p_value < alpha]
+        failed = [v for v in verdicts if v.outcome == "fail"]
         if failed:
-            t = min(failed, key=lambda x: x.p_value)
+            v = min(failed, key=lambda x: x.p_value)
+            where = None
+            if v.against_drift is not None:
+                e = v.against_drift
+                where = {"replica": e.replica, "snapshot": e.snapshot}
+            suffix = f" ({'; '.join(notes)})" if notes else ""
             return self.result(
-                "fail",
-                _failure(t, ndim) + suffix,
-                values=values,
-                thresholds=thresholds,
-            )
+                "fail", _failure(v, ndim) + suffix, values=values, thresholds=thresholds,
+                where=where,
+            )  # fmt: skip
         logged = f"all {audit.events} logged moves join declared neighbours" if audit else ""
-        coarse = [t for t in tests if not t.resolved]
-        if not tests or (coarse and audit is not None):
-            status = "pass" if audit is not None else "skip"
-            text = logged or "no axis long enough to test"
-            return self.result(status, text + suffix, values=values, thresholds=thresholds)
-        if coarse:
-            parts = [
-                f"axis {_axis_name(t.axis, ndim)}: interior-bond correlation "
-                f"{_fmt(t.bond_mean)}, distant pairs {_fmt(t.far_mean)}, separation "
-                f"{_fmt(t.separation)}"
-                for t in coarse
-            ]
-            return self.result(
-                "warn",
-                "snapshots too far apart (or too few moves) to tell walls from a ring: "
-                + "; ".join(parts)
-                + suffix,
-                values=values,
-                thresholds=thresholds,
-            )
-        summary = ", ".join(
-            f"{_axis_name(t.axis, ndim)} {t.boundary} (p = {t.p_value:.2g})" for t in tests
-        )
-        text = f"seams agree with the declared boundaries: {summary}"
-        if logged:
+        judged = [v for v in verdicts if v.outcome == "pass"]
+        open_ = [v for v in verdicts if v.outcome == "undecided"]
+        if open_ and audit is None:
+            notes += [_undecided(v, ndim) for v in open_]
+        suffix = f" ({'; '.join(notes)})" if notes else ""
+        if not judged and audit is None:
+            text = "no axis could be judged" if verdicts else "no axis long enough to test"
+            return self.result("skip", text + suffix, values=values, thresholds=thresholds)
+        parts = [_passed(v, ndim) for v in judged]
+        text = "the bond transfers agree with the declared boundaries: " + ", ".join(parts)
+        if not parts:
+            text = logged
+        elif logged:
             text += f"; {logged}"
         return self.result("pass", text + suffix, values=values, thresholds=thresholds)
 
@@ -169,21 +195,71 @@ class BoundaryCheck(Check):
         )
 
 
-def _failure(t: SeamTest, ndim: int) -> str:
-    name = _axis_name(t.axis, ndim)
-    head = f"axis {name} is declared {t.boundary} but"
-    if t.boundary != "periodic":
+def _passed(v: AxisVerdict, ndim: int) -> str:
+    spread = f"spreading distance {_fmt(v.ell)} of {v.length} sites"
+    how = f"p = {v.p_value:.2g}"
+    if not math.isfinite(v.p_value) and v.ring is not None:  # walls judged by the ring test
+        how = f"not a ring: p = {v.ring.p_value:.2g}"
+    elif v.reason == "pile":
+        how += "; walls would pile the declared drift's mass against one of them"
+    return f"{_axis_name(v.axis, ndim)} {v.boundary} ({how}, {spread})"
+
+
+def _undecided(v: AxisVerdict, ndim: int) -> str:
+    name = _axis_name(v.axis, ndim)
+    spread = f"spreading distance {_fmt(v.ell)} sites on an axis of {v.length}"
+    if v.reason == "inflow":
+        return f"axis {name} not judged: it is open but the run has no inflow record for it alone"
+    if v.reason == "still":
+        return f"axis {name} not judged: the mass barely moves between snapshots"
+    if v.reason == "start":
         return (
-            f"{head} its seam behaves like a bond (a ring?): seam correlation {_fmt(t.seam)}, "
-            f"distant pairs {_fmt(t.far_mean)} +- {_fmt(t.far_sd)}, interior bonds "
-            f"{_fmt(t.bond_mean)}; p = {t.p_value:.2g}"
+            f"axis {name} not judged: the declared start (all mass on one site) breaks the "
+            "ring's symmetry, and the transfers alone do not rule out walls"
         )
-    if t.cause == "correlation":
+    if v.reason == "spread":
+        wall = v.wall
         return (
-            f"{head} its seam does not behave like a bond (walls?): seam correlation "
-            f"{_fmt(t.seam)}, interior bonds {_fmt(t.bond_mean)} +- {_fmt(t.bond_sd)}; "
-            f"p = {t.p_value:.2g}"
+            f"axis {name} not judged: snapshots too far apart to tell walls from a ring "
+            f"({spread}; two bonds a third of the axis apart must be at least "
+            f"{REACH:g} of them apart)"
+            if wall is None
+            else f"axis {name} not judged ({spread})"
         )
     return (
-        f"{head} the sites at its ends change unlike interior sites (walls?); p = {t.p_value:.2g}"
+        f"axis {name} not judged: too little motion (or too few snapshot pairs) for a "
+        f"boundary of the other kind to be caught ({spread})"
+    )
+
+
+def _failure(v: AxisVerdict, ndim: int) -> str:
+    name = _axis_name(v.axis, ndim)
+    head = f"axis {name} is declared {v.boundary} but"
+    spread = f"spreading distance {_fmt(v.ell)} of {v.length} sites"
+    if v.reason == "seam" and v.ring is not None:
+        ranks = ", ".join(f"{r:g}" for r in v.ring.seam_ranks)
+        how = {
+            "shares": "how far their transfers stray from the cuts' mean",
+            "profile": "the density step across them",
+        }
+        used = " / ".join(how[m] for m in dict.fromkeys(v.ring.modes))
+        return (
+            f"{head} its seam is unlike the bonds (a wall?): ranked by {used}, the seam "
+            f"comes {ranks} of {v.ring.k} evenly spaced bonds in the {v.ring.replicas} "
+            f"replicas; p = {v.p_value:.2g} ({spread})"
+        )
+    if v.reason == "drift" and v.against_drift is not None:
+        e = v.against_drift
+        return (
+            f"{head} net {e.value:+d} units crossed bond {e.bond} against the declared total "
+            f"drift (replica {e.replica}, snapshots {e.snapshot - 1} to {e.snapshot}): the "
+            "transfers are off by a common amount, as on a ring"
+        )
+    assert v.wall is not None
+    a, b = v.wall.bonds
+    return (
+        f"{head} all its bonds share one extra transfer per snapshot pair, as on a ring: "
+        f"the transfers across bonds {a} and {b} change together (correlation "
+        f"{v.wall.mean:.2f} of normal scores, tolerated {v.wall.rho0:.2f}, t = "
+        f"{v.wall.statistic:.3g}); p = {v.p_value:.2g} ({spread})"
     )

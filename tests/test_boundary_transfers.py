@@ -1,0 +1,156 @@
+"""The tests behind the ``boundary`` check, on runs whose transfers are known by construction.
+
+Masses are built from prescribed bond transfers (m(t+1) = m(t) + transfers in - transfers
+out): independent Skellam transfers on every bond of a ring, or on every bond but the last
+behind walls; or a frozen pile that trades units across one bond only. Then the null
+hypotheses hold exactly (cuts are exchangeable on the ring; bond transfers are independent
+behind walls), and:
+
+* the exact ring p-value is checked against brute-force enumeration of rank sums, and its
+  false-alarm rate against its level (binomial test, scipy.stats.binomtest), for moving
+  and for frozen (profile-ranked) rings;
+* on a ring the transfers reconstructed at a third and two thirds of the axis have
+  correlation 1/2: x_a - C and x_b - C with x_a, x_b, C independent of equal variance
+  (derived, common practice);
+* behind walls the batch-means t statistic of the pair correlation about its true value 0
+  follows Student's t with its degrees of freedom (Kolmogorov-Smirnov, scipy.stats.kstest);
+* the spreading distance of independent bond transfers is below one site;
+* each kind of data declared as the other kind fails with the smallest reachable p.
+"""
+
+from __future__ import annotations
+
+import itertools
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from massarc.archive import Chunk, ChunkRef
+from massarc.schema import parse_metadata
+from massarc.validators.checks.boundary.judge import (
+    judge_axis,
+    ring_test,
+    spreading,
+    sum_of_ranks_cdf,
+    wall_test,
+)
+from massarc.validators.checks.boundary.transfers import TransferStatistic
+
+L, T, R = 60, 240, 4
+
+
+def built(kind: str, seed: int) -> np.ndarray:
+    """(replica, time, L) masses from independent Skellam(2, 2) bond transfers; behind
+    walls the last bond carries nothing."""
+    rng = np.random.default_rng(seed)
+    j = rng.poisson(2.0, (R, T - 1, L)) - rng.poisson(2.0, (R, T - 1, L))
+    if kind == "walls":
+        j[..., -1] = 0
+    m = np.full((R, T, L), 400, np.int64)
+    m[:, 1:] += np.cumsum(np.roll(j, 1, axis=2) - j, axis=1)
+    assert m.min() >= 0
+    return m
+
+
+def piled(kind: str, seed: int) -> np.ndarray:
+    """A pile of 300 units on two sites that trade units across the bond between them;
+    nothing else moves. On a ring the pile sits anywhere (uniformly, each replica), behind
+    walls it leans on the right wall."""
+    rng = np.random.default_rng(seed)
+    m = np.zeros((R, T, L), np.int64)
+    for r in range(R):
+        c = int(rng.integers(L)) if kind == "ring" else L - 2
+        left = rng.binomial(300, 0.5, T)
+        m[r, :, c] = left
+        m[r, :, (c + 1) % L] = 300 - left
+    return m
+
+
+def reduced(mass: np.ndarray, boundary: str):
+    meta = parse_metadata(
+        {
+            "model": {"family": "custom", "description": "built from bond transfers"},
+            "lattice": {"sites": [L], "boundary": boundary},
+            "run": {"regime": "stationary"},
+        }
+    )
+    # the statistic fed directly, one chunk per replica (the scan engine is tested elsewhere)
+    run = SimpleNamespace(sites=(L,), n_replicas=R, n_snapshots=T, meta=meta)
+    stat = TransferStatistic(run)
+    for r in range(R):
+        stat.merge(ChunkRef(r, 0, T, ""), stat.chunk(Chunk(r, 0, T, mass[r])))
+    return stat.finish([]).axes[0]
+
+
+def judged(mass: np.ndarray, boundary: str, **options):
+    data = reduced(mass, boundary)
+    return judge_axis(data, boundary, **options), data
+
+
+def test_rank_sum_law_is_the_enumerated_one():
+    for reps, k in ((1, 7), (2, 5), (3, 4), (4, 3)):
+        sums = np.array([sum(c) for c in itertools.product(range(1, k + 1), repeat=reps)])
+        for s in range(reps, reps * k + 1):
+            # brute force over all k^reps equally likely rank tuples (common practice)
+            assert sum_of_ranks_cdf(reps, k, s) == pytest.approx(np.mean(sums <= s), abs=1e-12)
+
+
+@pytest.mark.parametrize("make", [built, piled])
+def test_ring_p_values_hold_their_level_and_walls_reach_the_floor(make):
+    ps = []
+    for seed in range(60):
+        ring = ring_test(reduced(make("ring", seed), "periodic"))
+        assert set(ring.modes) == {"shares" if make is built else "profile"}
+        ps.append(ring.p_value)
+    ps = np.array(ps)
+    for level in (0.1, 0.3):  # an exact test: P(p <= level) <= level
+        hits = int((ps <= level).sum())
+        assert stats.binomtest(hits, len(ps), level, alternative="greater").pvalue > 1e-3
+    verdict, data = judged(make("walls", 99), "periodic")
+    k = data.plan.ring_k
+    assert verdict.outcome == "fail" and verdict.reason == "seam", verdict
+    assert verdict.ring is not None
+    assert set(verdict.ring.seam_ranks) == ({1.0} if make is built else {float(k)})
+    assert verdict.p_value == pytest.approx(2 * k**-R)  # two-sided
+
+
+def test_a_ring_reconstructed_from_its_seam_correlates_its_thirds_by_one_half():
+    rho = []
+    for seed in range(8):
+        data = reduced(built("ring", 200 + seed), "periodic")
+        a, b = data.plan.wall
+        x = data.x[:, :, [a, b]].reshape(-1, 2).astype(float)
+        rho.append(np.corrcoef(x.T)[0, 1])
+    # 8 x 956 intervals: the standard error of a correlation of 1/2 is about 0.01
+    assert np.mean(rho) == pytest.approx(0.5, abs=0.03)
+    verdict, _ = judged(built("ring", 7), "reflecting")
+    assert verdict.outcome == "fail" and verdict.reason == "common", verdict
+    assert verdict.wall is not None and verdict.wall.mean == pytest.approx(0.5, abs=0.08)
+    assert verdict.p_value < 1e-10
+
+
+def test_wall_statistic_about_its_true_value_follows_student_t():
+    ts, dofs = [], set()
+    for seed in range(60):
+        verdict, data = judged(built("walls", 1000 + seed), "reflecting")
+        assert verdict.outcome == "pass", verdict
+        ell = spreading(data).ell
+        assert ell < 1.0  # independent bonds: nothing spreads
+        wall = wall_test(data, ell)
+        assert wall is not None
+        ts.append(wall.mean / wall.se)  # about the true correlation 0 of independent bonds
+        dofs.add(wall.dof)
+    (dof,) = dofs
+    assert stats.kstest(ts, stats.t(dof).cdf).pvalue > 1e-3
+
+
+def test_a_piled_axis_behind_walls_is_judged_by_the_ring_test():
+    verdict, _ = judged(piled("walls", 5), "reflecting")
+    # the bulk never moves: no wall test, but the seam is unlike a ring's
+    assert verdict.outcome == "pass" and verdict.ring is not None, verdict
+    assert verdict.wall is None or verdict.wall.blocks == 0
+    assert verdict.ring.p_value < 1e-4
+    verdict, _ = judged(piled("ring", 5), "reflecting")
+    assert verdict.outcome == "undecided", verdict
