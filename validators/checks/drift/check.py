@@ -103,6 +103,10 @@ class DriftCheck(Check):
         transport = transport_of(model, density)
         p = float(model.right_probability)
         mass = density * float(np.prod(ctx.run.sites))
+        times = np.asarray(ctx.run.times, dtype=np.float64)
+        used = np.asarray(st.starts, dtype=np.int64)
+        used = used[used < len(times)]
+        span = float(times[used.max()] - times[used.min()]) if len(used) > 1 else None
         verdicts: list[AxisDrift] = []
         notes: list[str] = []
         for axis, data in enumerate(st.axes):
@@ -131,6 +135,7 @@ class DriftCheck(Check):
                     centre=centre,
                     transport=transport,
                     starts=st.starts,
+                    span=span,
                     profile=None if prof is None else prof.axis(axis),
                     edges=None if prof is None else prof.edges[axis],
                     flat=isinstance(model, ZRPModel) and data.periodic,
