@@ -52,13 +52,13 @@ def test_hashes_follow_their_definition(shape):
     stat = _stat(x)
     fp = stat.finish([])
     keys = [int(k) for k in stat.site_keys.reshape(-1)]
-    probe_keys = [int(k) for k in stat.probe_keys]
+    marker_keys = [int(k) for k in stat.marker_keys]
     for r in range(2):
         for t in range(9):
             snap = x[r, t]
             flat = [int(v) for v in snap.reshape(-1)]
             at = [int(np.ravel_multi_index(tuple(o), shape)) for o in stat.offsets]
-            assert int(fp.sparse[r, t]) == _hash([flat[i] for i in at], probe_keys)
+            assert int(fp.sparse[r, t]) == _hash([flat[i] for i in at], marker_keys)
             anchor = int(np.argmax(snap))
             assert int(fp.anchor[r, t]) == anchor
             a = np.unravel_index(anchor, shape)
@@ -66,7 +66,7 @@ def test_hashes_follow_their_definition(shape):
                 int(np.ravel_multi_index(tuple((np.array(a) + o) % shape), shape))
                 for o in stat.offsets
             ]
-            assert int(fp.anchored[r, t]) == _hash([flat[i] for i in moved], probe_keys)
+            assert int(fp.anchored[r, t]) == _hash([flat[i] for i in moved], marker_keys)
             assert fp.sampled[t]  # a small run: every snapshot gets its full hashes
             assert int(fp.full[r, t]) == _hash(flat, keys)
             # relative to the anchor: the snapshot rolled so that the anchor sits at 0

@@ -7,8 +7,8 @@ Per (replica, snapshot) four 64-bit numbers, all of the form mix(sum_j k_j m_j m
 with fixed pseudo-random odd keys k_j and the splitmix64 finaliser ``mix``:
 
 ``sparse``
-    over up to ``probes`` (default 64) fixed sites spread over the lattice: equal for
-    identical snapshots, different for different ones unless they agree at every probe;
+    over up to ``markers`` (default 64) fixed sites spread over the lattice: equal for
+    identical snapshots, different for different ones unless they agree at every marker;
 ``anchored``
     the same at sites placed relative to the *anchor*, the first site holding the
     largest mass: a copy of a snapshot rolled along the lattice (a cyclic shift along
@@ -21,7 +21,7 @@ with fixed pseudo-random odd keys k_j and the splitmix64 finaliser ``mix``:
     :func:`massarc.archive.stats.sampling.hashed_subset`): the exact confirmation of
     the matches the sparse hashes propose.
 
-Cost: two probe sums touch ``2 * probes`` values per snapshot; the anchor is the position
+Cost: two marker sums touch ``2 * markers`` values per snapshot; the anchor is the position
 of the largest mass the ``snapshots`` statistic computes anyway (its reduction of the
 chunk is shared when both run in one pass: :meth:`SnapshotStatistic.reduction`); the full
 hashes touch every site of the subset, whose density is
@@ -60,7 +60,7 @@ try:  # numba is the optional `fast` extra; without it the NumPy path below is u
 except ImportError:  # pragma: no cover - exercised only without numba
     njit = None
 
-__all__ = ["FingerprintStatistic", "FingerprintStats", "mix64", "probe_offsets"]
+__all__ = ["FingerprintStatistic", "FingerprintStats", "marker_offsets", "mix64"]
 
 _M1 = np.uint64(0xBF58476D1CE4E5B9)
 _M2 = np.uint64(0x94D049BB133111EB)
@@ -80,12 +80,12 @@ def _keys(n: int, salt: int) -> np.ndarray:
     return mix64(np.arange(n, dtype=np.uint64) + np.uint64(salt)) | np.uint64(1)
 
 
-def probe_offsets(sites: tuple[int, ...], probes: int) -> np.ndarray:
-    """Up to ``probes`` offsets ``(probe, axis)`` spread evenly over the lattice."""
+def marker_offsets(sites: tuple[int, ...], markers: int) -> np.ndarray:
+    """Up to ``markers`` offsets ``(marker, axis)`` spread evenly over the lattice."""
     if len(sites) == 1:
-        k = min(probes, sites[0])
+        k = min(markers, sites[0])
         return np.unique(np.linspace(0, sites[0] - 1, k).round().astype(np.int64))[:, None]
-    per = max(1, math.isqrt(probes))
+    per = max(1, math.isqrt(markers))
     ys = np.unique(np.linspace(0, sites[0] - 1, min(per, sites[0])).round().astype(np.int64))
     xs = np.unique(np.linspace(0, sites[1] - 1, min(per, sites[1])).round().astype(np.int64))
     return np.stack(np.meshgrid(ys, xs, indexing="ij"), axis=-1).reshape(-1, 2)
@@ -117,11 +117,11 @@ class FingerprintStatistic(Statistic):
         self.sites = tuple(int(s) for s in run.sites)
         n_rep, n_snap = int(run.n_replicas), int(run.n_snapshots)
         volume = math.prod(self.sites) if self.sites else 0
-        probes = int(options.get("probes", 64))
-        if probes < 1:
-            raise ValueError(f"fingerprints: expected probes >= 1; got {probes}")
-        self.offsets = probe_offsets(self.sites, probes) if volume else np.zeros((0, 1), int)
-        self.probe_keys = _keys(len(self.offsets), 0x5EED)
+        markers = int(options.get("markers", 64))
+        if markers < 1:
+            raise ValueError(f"fingerprints: expected markers >= 1; got {markers}")
+        self.offsets = marker_offsets(self.sites, markers) if volume else np.zeros((0, 1), int)
+        self.marker_keys = _keys(len(self.offsets), 0x5EED)
         self.site_keys = _keys(volume, 0xF011).reshape(self.sites) if volume else np.zeros(0)
         # the kernels see every lattice as 2D: (1, L) in 1D
         self.sites2 = np.array((1, *self.sites) if len(self.sites) == 1 else self.sites, np.int64)
@@ -170,7 +170,7 @@ class FingerprintStatistic(Statistic):
             sampled,
             self.offsets2,
             self.sites2,
-            self.probe_keys,
+            self.marker_keys,
             self.site_keys.reshape(-1),
         )
         hashes = _hash_numba(*args) if _use_numba() else _hash_numpy(*args)
@@ -217,19 +217,19 @@ def _hash_numpy(
     sampled: np.ndarray,
     offsets: np.ndarray,
     sites: np.ndarray,
-    probe_keys: np.ndarray,
+    marker_keys: np.ndarray,
     site_keys: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """The four hashes of every row (module docstring), NumPy only."""
     ly, lx = int(sites[0]), int(sites[1])
     n = len(rows)
     sparse_at = offsets[:, 0] * lx + offsets[:, 1]
-    sparse = mix64((_as_u64(rows[:, sparse_at]) * probe_keys).sum(axis=1, dtype=np.uint64))
+    sparse = mix64((_as_u64(rows[:, sparse_at]) * marker_keys).sum(axis=1, dtype=np.uint64))
     ay, ax = anchor // lx, anchor % lx
     py = (ay[:, None] + offsets[None, :, 0]) % ly
     px = (ax[:, None] + offsets[None, :, 1]) % lx
-    probes = np.take_along_axis(rows, py * lx + px, axis=1)
-    anchored = mix64((_as_u64(probes) * probe_keys).sum(axis=1, dtype=np.uint64))
+    markers = np.take_along_axis(rows, py * lx + px, axis=1)
+    anchored = mix64((_as_u64(markers) * marker_keys).sum(axis=1, dtype=np.uint64))
     full = np.zeros(n, np.uint64)
     full_anchored = np.zeros(n, np.uint64)
     picked = np.flatnonzero(sampled)
@@ -254,7 +254,7 @@ if njit is not None:
 
     @njit(cache=True, nogil=True, boundscheck=False)
     def _hash_numba(
-        rows, anchor, sampled, offsets, sites, probe_keys, site_keys
+        rows, anchor, sampled, offsets, sites, marker_keys, site_keys
     ):  # pragma: no cover - compiled
         n, volume = rows.shape
         ly, lx = sites[0], sites[1]
@@ -269,14 +269,14 @@ if njit is not None:
             h2 = np.uint64(0)
             for j in range(k):
                 oy, ox = offsets[j, 0], offsets[j, 1]
-                h1 += np.uint64(np.int64(rows[i, oy * lx + ox])) * probe_keys[j]
+                h1 += np.uint64(np.int64(rows[i, oy * lx + ox])) * marker_keys[j]
                 py = ay + oy
                 if py >= ly:
                     py -= ly
                 px = ax + ox
                 if px >= lx:
                     px -= lx
-                h2 += np.uint64(np.int64(rows[i, py * lx + px])) * probe_keys[j]
+                h2 += np.uint64(np.int64(rows[i, py * lx + px])) * marker_keys[j]
             sparse[i] = _mix_one(h1)
             anchored[i] = _mix_one(h2)
             if sampled[i]:
