@@ -101,6 +101,23 @@ def test_a_driven_ring_declared_with_walls_fails():
     assert fault.where is not None and fault.values["axes"][0]["p_value"] == 0.0
 
 
+def test_a_drift_wave_across_the_pair_leaves_a_driven_ring_declared_walls_undecided():
+    # Outside truth: the run is a ring (simulated periodic). Run 9 of the boundary study's
+    # driven ZRP ring at spacing 100 (bench/calibrate_boundary.py, seed 1): its declared
+    # drift carries a fluctuation about 27 sites between snapshots, which correlates the
+    # thirds of the axis with the seam; the wall test found p = 0.005 and once passed it.
+    m = meta("zrp", (200,), ["periodic"], p=0.8)
+    times = np.arange(300) * SPACING
+    run = simulate(m, times, replicas=4, seed=100_009, mass=300, initial="steady-state",
+                   location=memory())  # fmt: skip
+    fault = check(redeclare(run, ["reflecting"]))
+    assert fault.status in ("skip", "fail"), fault.message
+    axis = fault.values["axes"][0]
+    if fault.status == "skip":
+        assert axis["reason"] == "wave" and "carries a fluctuation" in fault.message
+        assert axis["carried"] > 20
+
+
 @pytest.mark.parametrize("p", [0.8, 1.0])
 def test_a_drift_between_walls_piles_mass_that_a_ring_cannot_hold(p):
     # the bulk empties and freezes; the seam sits between the pile and the empty end

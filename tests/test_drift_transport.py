@@ -19,7 +19,7 @@ from scipy.optimize import brentq
 
 from massarc.schema import CMAMModel, ZRPModel
 from massarc.simulate import simulate
-from massarc.validators.checks.drift.transport import (
+from massarc.validators.analysis.transport import (
     Transport,
     dt_for,
     influence,

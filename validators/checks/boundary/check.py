@@ -23,7 +23,8 @@ Under H0 a clean run fails with probability at most about ``alpha`` per axis. An
 judged (pass or fail) when a boundary of the other kind would be caught, or the data rule
 it out; otherwise it is not judged, and the check says why with the measured spreading
 distance and the axis length: snapshots so far apart that they are effectively independent
-samples (walls and a ring then look alike), mass that barely moves, a declared start that
+samples (walls and a ring then look alike), a declared drift that carries fluctuations
+across the tested bonds between snapshots, mass that barely moves, a declared start that
 breaks the ring's symmetry, or an open axis without an inflow record. The check skips when
 no axis is judged.
 
@@ -38,8 +39,11 @@ from __future__ import annotations
 import math
 from typing import Any, ClassVar
 
+import numpy as np
+
 from massarc.schema.spec import mass_dimensions
 
+from ...analysis.transport import carried, transport_of
 from ...engine.registry import Check, CheckContext, Option
 from ...engine.result import CheckResult
 from .events import EventAudit, audit_events
@@ -111,6 +115,7 @@ class BoundaryCheck(Check):
         right_probability = getattr(meta.model, "right_probability", None)
         initial = meta.run.initial.kind if meta.run.initial is not None else None
         invariant = initial != "condensed"
+        wave = _carried(ctx, right_probability)
         verdicts: list[AxisVerdict] = []
         notes: list[str] = []
         for axis, kind in enumerate(lattice.boundary):
@@ -132,6 +137,7 @@ class BoundaryCheck(Check):
                     right_probability=right_probability,
                     invariant_start=invariant,
                     stationary=meta.run.regime == "stationary",
+                    carried=wave,
                 )
             )
         values: dict[str, Any] = {"axes": [v.values for v in verdicts]}
@@ -195,6 +201,25 @@ class BoundaryCheck(Check):
         )
 
 
+def _carried(ctx: CheckContext, right_probability: float | None) -> float:
+    """Sites the declared drift carries a fluctuation between the two most distant
+    consecutive snapshots (:func:`massarc.validators.analysis.transport.carried`)."""
+    meta = ctx.meta
+    times = np.asarray(ctx.run.times, dtype=np.float64)
+    if meta is None or right_probability is None or len(times) < 2:
+        return 0.0
+    volume = max(1, meta.lattice.volume)
+    if meta.run.density is not None:
+        density = float(meta.run.density)
+    elif meta.run.total_mass is not None:
+        density = float(meta.run.total_mass) / volume
+    else:
+        density = float(ctx.run.read(0, 0, 1).sum()) / volume
+    dt = float(np.max(np.diff(times)))
+    drift = abs(2.0 * float(right_probability) - 1.0)
+    return carried(dt, drift, transport_of(meta.model, density), meta.lattice.ndim)
+
+
 def _passed(v: AxisVerdict, ndim: int) -> str:
     spread = f"spreading distance {_fmt(v.ell)} of {v.length} sites"
     how = f"p = {v.p_value:.2g}"
@@ -225,6 +250,15 @@ def _undecided(v: AxisVerdict, ndim: int) -> str:
             f"{REACH:g} of them apart)"
             if wall is None
             else f"axis {name} not judged ({spread})"
+        )
+    if v.reason == "wave":
+        far = v.wall.spacing if v.wall is not None else float("nan")
+        wave = float(v.values.get("carried") or 0.0)  # type: ignore[arg-type]
+        return (
+            f"axis {name} not judged: the declared drift carries a fluctuation about "
+            f"{_fmt(wave)} sites between snapshots, which correlates distant bonds on a ring "
+            f"as it would behind walls ({spread}; the tested bonds are {far} apart and "
+            f"should be {_fmt(REACH * v.ell + wave)}: snapshots closer in time would decide)"
         )
     return (
         f"axis {name} not judged: too little motion (or too few snapshot pairs) for a "

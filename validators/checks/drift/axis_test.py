@@ -3,7 +3,7 @@
 Inputs are the ``spacetime`` statistic (antisymmetric space-time covariances A(r) of the
 masses at sampled starts, their windowed sums ``zero`` and first moments ``first``, and the
 equal-time susceptibilities K+ and K-; :mod:`.spacetime`) and, at walls, the ``profiles``
-statistic. How far a fluctuation can travel comes from :mod:`.transport`.
+statistic. How far a fluctuation can travel comes from :mod:`massarc.validators.analysis.transport`.
 
 Mirror test (is the axis mirror-symmetric?)
     H0: the process is mirror-symmetric along the axis in distribution, so every cell
@@ -19,7 +19,7 @@ Mirror test (is the axis mirror-symmetric?)
 Which lags can say where fluctuations went
     Over the time dt of a lag a fluctuation reaches at most s = c dt + 3 sqrt(r_max dt /
     d) + 1 sites (c the kinematic wave speed of the declared drift, r_max the largest hop
-    rate, d the dimension; :mod:`.transport`). A lag is *usable* when s
+    rate, d the dimension; :mod:`massarc.validators.analysis.transport`). A lag is *usable* when s
     fits in the window L//4: fluctuations have then not wrapped the ring nor met the
     far-field compensation that mass conservation imposes on a ring (the first moment
     over the whole ring vanishes), so the sign of every cell of windows up to L//4 is the
@@ -72,8 +72,8 @@ import numpy as np
 from scipy.stats import norm
 
 from ...analysis.replica_tests import MeanTest, replica_mean_test
+from ...analysis.transport import Transport, dt_for, influence, profile_centre
 from .spacetime import VARIANTS, AxisSpacetime
-from .transport import Transport, dt_for, influence, profile_centre
 
 __all__ = ["AxisDrift", "judge_axis"]
 

@@ -3,7 +3,8 @@
 Statistics: the ``spacetime`` statistic (antisymmetric space-time covariances of the masses
 at sampled starts; :mod:`.spacetime`, brought by the check itself), ``profiles`` (centre of
 mass between walls) and ``snapshots`` (the density). The judgement is :mod:`.axis_test`,
-with the physics of :mod:`.transport`; their docstrings give every definition.
+with the physics of :mod:`massarc.validators.analysis.transport`; their docstrings give
+every definition.
 
 Null hypotheses and p-values, per axis of at least 4 sites:
 
@@ -40,12 +41,12 @@ from massarc.archive.stats import ProfileStats
 from massarc.schema import CMAMModel, ZRPModel
 from massarc.schema.spec import mass_dimensions
 
+from ...analysis.transport import transport_of, walls_centre
 from ...engine.registry import Check, CheckContext, Option
 from ...engine.result import CheckResult
 from .._common import fault_note
 from .axis_test import AxisDrift, judge_axis
 from .spacetime import SpacetimeStatistic, SpacetimeStats
-from .transport import transport_of, walls_centre
 
 __all__ = ["DriftCheck"]
 

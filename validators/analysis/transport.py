@@ -1,7 +1,7 @@
 """How far a fluctuation can travel, and where a driven ZRP piles its mass between walls.
 
-The physics the ``drift`` check's axis test (:mod:`.axis_test`) leans on, as pure
-functions of the declared model:
+The physics the ``drift`` check's axis test and the ``boundary`` check's wall test lean on,
+as pure functions of the declared model:
 
 * :func:`transport_of`: the kinematic wave speed per unit drift, c1 (before the 1/d share
   of moves along an axis), and the largest hop rate r_max. A fluctuation moves at most as
@@ -10,7 +10,8 @@ functions of the declared model:
   whose moves carry a whole mass at rate D), and spreads at most like a random walk at
   r_max;
 * :func:`influence`: the sites s = c dt + 3 sqrt(r_max dt / d) + 1 a fluctuation can
-  reach in the time dt of a lag; :func:`dt_for` inverts it;
+  reach in the time dt of a lag; :func:`dt_for` inverts it; :func:`carried`: the sites
+  c dt a drift carries a fluctuation in dt;
 * :func:`walls_centre`: the centre of mass of a ZRP's steady state between walls under a
   drift (exact for its product measure), and :func:`profile_centre`, the centre of mass
   the ``profiles`` statistic measures.
@@ -41,6 +42,7 @@ from massarc.schema.laws import (
 
 __all__ = [
     "Transport",
+    "carried",
     "dt_for",
     "influence",
     "profile_centre",
@@ -93,6 +95,20 @@ def influence(dt: float, drift: float, transport: Transport, ndim: int) -> float
         return math.inf
     share = transport.r_max * dt / ndim
     return drift * transport.c1 * dt / ndim + 3.0 * math.sqrt(share) + 1.0
+
+
+def carried(dt: float, drift: float, transport: Transport | None, ndim: int) -> float:
+    """Sites a drift |2p - 1| = ``drift`` carries a fluctuation in ``dt``, at most: c dt with
+    c = drift c1 / d (0 without a known transport, or without drift).
+
+    >>> carried(100.0, 0.6, Transport(c1=2.0, r_max=2.0), 1)
+    120.0
+    """
+    if transport is None or not drift > 0:
+        return 0.0
+    if not math.isfinite(dt) or dt < 0:
+        return math.inf
+    return drift * transport.c1 * dt / ndim
 
 
 def profile_centre(profile: np.ndarray, edges: np.ndarray) -> np.ndarray:
