@@ -290,9 +290,15 @@ def main() -> None:
     print(f"wrote {args.doc} in {elapsed:.0f} s")
 
 
+BEGIN = "<!-- bench/calibrate.py: begin -->"
+END = "<!-- bench/calibrate.py: end -->"
+
+
 def write_doc(path: Path, r: dict) -> None:
+    """Fill the part of ``path`` between :data:`BEGIN` and :data:`END` (the rest of the
+    page, the studies as groups store runs, is written by hand from the other studies)."""
     lines = [
-        "# Calibration of `massarc check`",
+        "## Dense snapshots from the reference samplers (`bench/calibrate.py`)",
         "",
         "Measured by `bench/calibrate.py` on runs of the reference samplers "
         f"(L = {r['lattice']} sites, {r['replicas']} replicas per run, seed {r['seed']}, "
@@ -302,7 +308,7 @@ def write_doc(path: Path, r: dict) -> None:
         "",
         "Intervals are Clopper-Pearson 95%. Defaults of every check are used.",
         "",
-        "## False alarms on honest runs",
+        "### False alarms on honest runs",
         "",
         "| family | runs | runs with a `fail` | 95% interval | runs with a `warn` "
         "| which checks failed | which warned |",
@@ -323,7 +329,7 @@ def write_doc(path: Path, r: dict) -> None:
         "steady-state sample, for 2 L^z. CMAM runs: rings and chains, D = 1, w = 1 or 3, "
         "condensed and fluid, from an even spread, for 10 L^2 / D.",
         "",
-        "## Detection of planted faults",
+        "### Detection of planted faults",
         "",
         "| fault | check | runs | detected | 95% interval | other checks failing |",
         "| --- | --- | --- | --- | --- | --- |",
@@ -345,22 +351,18 @@ def write_doc(path: Path, r: dict) -> None:
         "with one b and declared with another (fluid and condensed); a run from a random "
         "start stopped at 0.01 L^3 (ZRP) or 0.03 L^2 (CMAM) and labelled stationary, once with "
         "the random start recorded in `run.initial` (as `massarc sample` records it) and once "
-        "without: then only the data can show the drift, and with four replicas whose "
-        "largest masses have not mixed the check often cannot tell it from slow wandering "
-        "and warns instead.",
-        "",
-        "## Per-check studies",
-        "",
-        "Larger studies of single checks (AR(1) series over a grid of correlations, lengths "
-        "and replica counts for `steady-state`; 480 runs of every drift, family and "
-        "dimension for `boundary`; fluid, condensed, 2-D and few-replica cases with their "
-        "power for `stationary-law`) are in `bench/calibrate_steady_state.py`, "
-        "`bench/calibrate_boundary.py` and `bench/calibrate_stationary_law.py`; their "
-        "results are in [bench/README.md](../bench/README.md).",
+        "without: then only the data can show it (the exact law of the ZRP's largest mass, "
+        "the CMAM's condensate scale).",
         "",
     ]
+    text = "\n".join(lines)
+    doc = path.read_text() if path.exists() else f"{BEGIN}\n{END}\n"
+    if BEGIN not in doc or END not in doc:
+        raise SystemExit(f"{path}: expected the markers {BEGIN} and {END}; found none")
+    head, rest = doc.split(BEGIN, 1)
+    tail = rest.split(END, 1)[1]
     path.parent.mkdir(exist_ok=True)
-    path.write_text("\n".join(lines))
+    path.write_text(f"{head}{BEGIN}\n{text}{END}{tail}")
 
 
 if __name__ == "__main__":

@@ -55,7 +55,7 @@ def guard_dynamics(meta: RunMeta) -> None:
 class Dynamics:
     """The fixed inputs of the event loop for one model, lattice and total mass."""
 
-    sites: int
+    volume: int
     nbr: np.ndarray
     ndim: int
     right_probability: float
@@ -102,7 +102,7 @@ class Dynamics:
         lattice = meta.lattice
         nbr = neighbour_table(list(lattice.sites), list(lattice.boundary))
         common = {
-            "sites": lattice.volume,
+            "volume": lattice.volume,
             "nbr": nbr,
             "ndim": lattice.ndim,
             "right_probability": float(model.right_probability),
@@ -134,14 +134,14 @@ class Dynamics:
     @property
     def attempt_rate(self) -> float:
         """Attempts per unit time on the whole lattice: N * r_max."""
-        return self.sites * self.rate_max
+        return self.volume * self.rate_max
 
 
 class Replica:
     """One replica: its masses (flat, int64), its generator and the event loop.
 
     It also keeps the net transfer across every bond since the last recorded snapshot
-    (``flow``, ``(ndim * sites,)``) and the units injected and extracted so far (``io``);
+    (``flow``, ``(ndim * volume,)``) and the units injected and extracted so far (``io``);
     :meth:`advance` hands them out when asked.
 
     >>> from massarc.schema import parse_metadata
@@ -167,7 +167,7 @@ class Replica:
         self.mass = np.ascontiguousarray(mass, dtype=np.int64).reshape(-1)
         self.rng = rng
         self.attempts = 0
-        self.flow = np.zeros(dynamics.ndim * dynamics.sites, np.int64)
+        self.flow = np.zeros(dynamics.ndim * dynamics.volume, np.int64)
         self.io = np.zeros(2, np.int64)
         self._loop: Callable[..., None] = event_loop(pure)
 
@@ -179,9 +179,9 @@ class Replica:
         io_out: np.ndarray | None = None,
     ) -> None:
         """Run on through the time steps ``dts`` (>= 0), recording the masses after each
-        step in the rows of ``out`` (``(len(dts), sites)``, int64).
+        step in the rows of ``out`` (``(len(dts), volume)``, int64).
 
-        With ``flows`` (``(len(dts), ndim * sites)``, int64) and ``io_out``
+        With ``flows`` (``(len(dts), ndim * volume)``, int64) and ``io_out``
         (``(len(dts), 2)``), also record the net transfer across every bond during each
         step and the cumulative units injected and extracted after it.
         """
@@ -199,7 +199,7 @@ class Replica:
         k = 0
         while done < total:
             b = min(BATCH, total - done)
-            sites = self.rng.integers(0, d.sites, size=b, dtype=np.int64)
+            picks = self.rng.integers(0, d.volume, size=b, dtype=np.int64)
             unif = self.rng.random(b)
             end = done + b
             k1 = int(np.searchsorted(cum, end, side="right"))  # records due by attempt `end`
@@ -214,7 +214,7 @@ class Replica:
                 d.rate_max,
                 d.diffusion,
                 d.chipping,
-                sites,
+                picks,
                 unif,
                 cum[k:k1] - done,
                 d.hop_max,

@@ -6,7 +6,7 @@ environment variable ``MASSARC_PURE=1``, the very same function runs in the inte
 Both consume the same arrays of uniforms and do the same IEEE arithmetic, so the compiled
 and pure paths give bit-identical trajectories.
 
-Each attempt ``i`` uses one site index ``sites[i]`` (uniform over the lattice) and one
+Each attempt ``i`` uses one site index ``picks[i]`` (uniform over the lattice) and one
 uniform ``unif[i]`` in [0, 1). With ``x = unif[i] * rate_max``:
 
 * ``x >= hop_max`` (open axes only; closed lattices have ``rate_max == hop_max``): a
@@ -67,7 +67,7 @@ def event_loop_py(
     rate_max: float,
     diffusion: float,
     chipping: float,
-    sites: np.ndarray,
+    picks: np.ndarray,
     unif: np.ndarray,
     stops: np.ndarray,
     hop_max: float,
@@ -82,11 +82,11 @@ def event_loop_py(
     io: np.ndarray,
     io_out: np.ndarray,
 ) -> None:
-    """Perform ``len(sites)`` attempts on ``mass`` (flat, int64), in place.
+    """Perform ``len(picks)`` attempts on ``mass`` (flat, int64), in place.
 
-    ``stops`` (sorted, values in 0..len(sites)) says when to record: ``out[j]`` receives a
+    ``stops`` (sorted, values in 0..len(picks)) says when to record: ``out[j]`` receives a
     copy of ``mass`` just before attempt ``stops[j]`` (after the last one when
-    ``stops[j] == len(sites)``). ``rates`` holds u(0..K) with u(k) = u(K) beyond K.
+    ``stops[j] == len(picks)``). ``rates`` holds u(0..K) with u(k) = u(K) beyond K.
 
     Open axes: ``open_axes`` lists them; ``strides`` and ``lengths`` give the flat stride and
     length of every axis; ``rate_max = hop_max + len(open_axes) * (alpha + beta)``. ``io``
@@ -96,7 +96,7 @@ def event_loop_py(
     When ``track``: ``flow`` (``ndim * N``) accumulates the net transfer across every bond
     since the last stop; at each stop it is copied to ``flow_out[j]`` and reset.
     """
-    n = len(sites)
+    n = len(picks)
     n_rec = len(stops)
     top = len(rates) - 1
     n_sites = len(mass)
@@ -110,7 +110,7 @@ def event_loop_py(
                 flow[:] = 0
                 io_out[j, :] = io
             j += 1
-        s = sites[i]
+        s = picks[i]
         m = mass[s]
         x = unif[i] * rate_max
         if x >= hop_max and len(open_axes) > 0:  # a reservoir attempt (open axes only)

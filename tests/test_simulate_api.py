@@ -138,17 +138,17 @@ def test_exact_samples_are_independent_canonical_snapshots(tmp_path: Path) -> No
 
 
 class _ScriptedGenerator:
-    """Stands in for numpy's Generator: hands out fixed Poisson counts, sites and uniforms."""
+    """Stands in for numpy's Generator: hands out fixed Poisson counts, site picks and uniforms."""
 
-    def __init__(self, counts: list[int], sites: list[int], unif: list[float]) -> None:
-        self.counts, self.sites, self.unif = list(counts), list(sites), list(unif)
+    def __init__(self, counts: list[int], picks: list[int], unif: list[float]) -> None:
+        self.counts, self.picks, self.unif = list(counts), list(picks), list(unif)
 
     def poisson(self, lam: np.ndarray) -> np.ndarray:
         out, self.counts = self.counts[: len(lam)], self.counts[len(lam) :]
         return np.array(out, dtype=np.int64)
 
     def integers(self, low: int, high: int, size: int, dtype: Any) -> np.ndarray:
-        out, self.sites = self.sites[:size], self.sites[size:]
+        out, self.picks = self.picks[:size], self.picks[size:]
         return np.array(out, dtype=dtype)
 
     def random(self, size: int) -> np.ndarray:
