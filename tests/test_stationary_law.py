@@ -16,6 +16,8 @@ Outside truth:
 
 from __future__ import annotations
 
+import math
+
 import itertools
 import uuid
 
@@ -234,3 +236,8 @@ def test_a_tiny_run_warns_instead_of_judging():
     result = check(run)
     assert result.status == "warn", result.message
     assert "too small to judge" in result.message and result.values["effective_n"] < 1000
+    # the warning says what would remove it: the effective sample grows with the window's
+    # length and with the replicas (common practice), so 1000 / n_eff of either would do
+    factor = 1000 / result.values["effective_n"]
+    assert f"about {factor:.3g}x as long" in result.message
+    assert f"about {math.ceil(2 * factor)} replicas instead of 2" in result.message

@@ -211,11 +211,15 @@ class StationaryLawCheck(Check):
                 "observed": obs,
                 "expected": exp,
             }
+        replicas = ctx.run.n_replicas
         if math.isnan(fit.p_value):
+            need = int(self._opt(ctx, "min_batches"))
             return self.result(
                 "warn",
                 f"too little data to judge the law ({fit.batches} batches, {fit.dof + 1} bins "
-                f"after merging, from snapshot {start})",
+                f"after merging, from snapshot {start}): a stationary window holding {need} "
+                "batches of uncorrelated snapshots over the replicas together (a longer run, "
+                "or more replicas) would allow it",
                 values=values,
                 thresholds=thresholds,
             )
@@ -228,7 +232,16 @@ class StationaryLawCheck(Check):
         if fit.p_value < alpha:
             status, head = "fail", "occupation law differs from the exact law of the declared rates"
         elif fit.effective_n < min_eff:
-            status, head = "warn", f"effective sample below {min_eff:g}, too small to judge"
+            # the effective sample grows with the window's length and with the replicas
+            factor = min_eff / max(fit.effective_n, 1e-12)
+            status, head = (
+                "warn",
+                (
+                    f"effective sample {fit.effective_n:.4g} below {min_eff:g}, too small to judge: "
+                    f"a stationary window about {factor:.3g}x as long, or about "
+                    f"{math.ceil(replicas * factor)} replicas instead of {replicas}, would judge it"
+                ),
+            )
         else:
             status, head = "pass", "occupation law agrees with the exact law"
         return self.result(
