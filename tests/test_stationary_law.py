@@ -16,9 +16,8 @@ Outside truth:
 
 from __future__ import annotations
 
-import math
-
 import itertools
+import math
 import uuid
 
 import numpy as np

@@ -237,7 +237,8 @@ class StationaryLawCheck(Check):
             status, head = (
                 "warn",
                 (
-                    f"effective sample {fit.effective_n:.4g} below {min_eff:g}, too small to judge: "
+                    f"effective sample {fit.effective_n:.4g} below {min_eff:g}, too small to "
+                    "judge: "
                     f"a stationary window about {factor:.3g}x as long, or about "
                     f"{math.ceil(replicas * factor)} replicas instead of {replicas}, would judge it"
                 ),
