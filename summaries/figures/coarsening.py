@@ -6,7 +6,8 @@ panel: ``coarsening_length`` l(t) (gid ``data``). On each, the fit stored in the
 ``growth`` attribute (gid ``fit``): the power law t^alpha with the stored exponent alpha,
 drawn over the stored fitting range [start, stop], its amplitude the least-squares
 intercept on log-log at the fit's own snapshots (the up to ``fit_points`` snapshots nearest
-to geometrically spaced times, :func:`massarc.summaries.growth.geometric_points`); and the
+to geometrically spaced times, :func:`massarc.summaries.growth.geometric_points`, where
+every replica's ``typical_mass``, or ``condensates`` for the length, is positive); and the
 expected law t^(1/z) (gid ``expected``; z = 3 symmetric ZRP, 2 driven ZRP and CMAM)
 through the same centre. A run started in the steady state has no growth to measure: its
 lines are not drawn and the caption says so; a fitting range flagged too short is marked
@@ -40,7 +41,7 @@ if TYPE_CHECKING:
 
 __all__ = ["NEEDS", "coarsening_figure", "fit_centre"]
 
-NEEDS = ("typical_mass_mean", "coarsening_length")
+NEEDS = ("typical_mass_mean", "coarsening_length", "typical_mass", "condensates")
 
 #: Default number of fit snapshots (the summaries' option ``fit_points``) for summaries
 #: that do not record it.
@@ -48,14 +49,18 @@ _FIT_POINTS = 64
 
 
 def fit_centre(
-    times: np.ndarray, values: np.ndarray, fit: dict[str, Any], points: int
+    times: np.ndarray, values: np.ndarray, fit: dict[str, Any], points: int, usable: np.ndarray
 ) -> tuple[float, float] | None:
     """(mean log t, mean log y) over the fit's snapshots inside its range (None when
-    fewer than two are usable): a least-squares line of any slope goes through it."""
+    fewer than two are usable): a least-squares line of any slope goes through it.
+
+    ``usable`` marks the snapshots the fit could use (every replica positive there).
+    """
     start, stop = fit.get("start"), fit.get("stop")
     if start is None or stop is None:
         return None
     idx = geometric_points(times, float(start), float(stop), points)
+    idx = idx[usable[idx]]
     y = np.asarray(values, dtype=np.float64)[idx]
     keep = np.isfinite(y) & (y > 0)
     if keep.sum() < 2:
@@ -64,12 +69,12 @@ def fit_centre(
 
 
 def _lines(ax: Axes, times: np.ndarray, values: np.ndarray, fit: dict[str, Any],
-           points: int) -> str | None:  # fmt: skip
+           points: int, usable: np.ndarray) -> str | None:  # fmt: skip
     """Draw the fitted and the expected power laws; the reason when they are not drawn."""
     if fit.get("steady_start"):
         return "no growth to measure (the run starts in the steady state)"
     alpha = fit.get("exponent")
-    centre = fit_centre(times, values, fit, points)
+    centre = fit_centre(times, values, fit, points, usable)
     if alpha is None or centre is None:
         return f"no fit ({fit.get('note', 'none stored')})"
     log_t0, log_y0 = centre
@@ -104,15 +109,18 @@ def coarsening_figure(run: Run | str | os.PathLike[str]) -> Figure:
     points = int(stored.options.get("fit_points", _FIT_POINTS))
     fig, axes = new_figure(2)
     panels = [
-        ("typical_mass_mean", f"typical mass Σm²/Σm ({MASS_UNITS})", "typical mass"),
-        ("coarsening_length", "coarsening length l(t) (sites)", "l(t)"),
-    ]
+        ("typical_mass_mean", "typical_mass", f"typical mass Σm²/Σm ({MASS_UNITS})",
+         "typical mass"),
+        ("coarsening_length", "condensates", "coarsening length l(t) (sites)", "l(t)"),
+    ]  # fmt: skip
     details = []
-    for ax, (name, ylabel, short) in zip(axes, panels, strict=True):
+    for ax, (name, per_replica, ylabel, short) in zip(axes, panels, strict=True):
         values = stored[name]
         ax.plot(times, values, color="C0", lw=1.2, label=f"{short}, mean over replicas",
                 gid="data")  # fmt: skip
-        why = _lines(ax, times, values, stored.attrs(name).get("growth") or {}, points)
+        each = stored[per_replica].astype(np.float64)
+        usable = np.all(np.isfinite(each) & (each > 0), axis=0)
+        why = _lines(ax, times, values, stored.attrs(name).get("growth") or {}, points, usable)
         if why:
             details.append(f"{short}: {why}")
         ax.set_xscale("log")
