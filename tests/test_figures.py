@@ -208,6 +208,20 @@ def test_occupation_draws_the_stored_law_the_exact_zrp_law_and_the_critical_guid
     _assert_readable(fig, steady)
 
 
+def test_occupation_leaves_out_the_overflow_bin_but_counts_it(steady, tmp_path) -> None:
+    copy = Path(shutil.copytree(steady, tmp_path / "few-bins.zarr"))
+    summarize(copy, {**QUICK, "occupation_bins": 8}, force=True)
+    counts = _stored(copy, "occupation").astype(float)
+    assert counts[-1] > 0  # masses >= 7 are pooled in the last bin
+    (ax,) = (fig := occupation_figure(copy)).axes
+    measured = _by_gid(ax, "measured")
+    assert measured.get_xdata().max() <= 6
+    keep = counts[1:7] > 0
+    np.testing.assert_allclose(measured.get_ydata(), counts[1:7][keep] / counts.sum())
+    np.testing.assert_array_equal(_by_gid(ax, "exact-law").get_xdata(), np.arange(1, 7))
+    assert f"{counts[-1] / counts.sum():.2g} of the site-snapshots hold m > 6" in _caption(fig)
+
+
 def test_occupation_of_the_cmam_has_the_mean_field_guide_and_no_exact_law(torus) -> None:
     fig = occupation_figure(torus)
     (ax,) = fig.axes
