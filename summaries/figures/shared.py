@@ -35,6 +35,7 @@ __all__ = [
     "FigureError",
     "Stored",
     "caption_line",
+    "fmt",
     "new_figure",
     "open_target",
     "read_stored",
@@ -179,11 +180,6 @@ def set_caption(fig: Figure, text: str) -> None:
     engine = fig.get_layout_engine()
     if engine is not None:
         engine.set(rect=(0.0, share, 1.0, 1.0 - share))
-
-
-def finite(values: np.ndarray) -> bool:
-    """Whether any value is finite (a panel with none is left empty and said so)."""
-    return bool(np.isfinite(np.asarray(values, dtype=np.float64)).any())
 
 
 def fmt(value: Any, digits: int = 3) -> str:

@@ -59,7 +59,7 @@ def time_edges(times: np.ndarray, geometric: bool) -> np.ndarray:
 
     >>> time_edges(np.array([0.0, 2.0, 4.0]), False).tolist()
     [-1.0, 1.0, 3.0, 5.0]
-    >>> time_edges(np.array([1.0, 100.0]), True).tolist()
+    >>> time_edges(np.array([1.0, 100.0]), True).round(6).tolist()
     [0.1, 10.0, 1000.0]
     """
     t = np.asarray(times, dtype=np.float64)
