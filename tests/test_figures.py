@@ -231,7 +231,7 @@ def test_occupation_of_the_cmam_has_the_mean_field_guide_and_no_exact_law(torus)
     np.testing.assert_allclose(_log_slopes(guide), -2.5, rtol=1e-9)
     assert "mean-field" in guide.get_label()
     assert not [a for a in ax.get_children() if a.get_gid() == "exact-law"]
-    assert "no exact law is known for family cmam" in _caption(fig)
+    assert "no exact stationary law is known for family cmam" in _caption(fig)
     _assert_readable(fig, torus)
 
 

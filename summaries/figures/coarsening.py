@@ -24,16 +24,7 @@ import numpy as np
 from massarc.archive import Run
 
 from ..growth import geometric_points
-from .shared import (
-    MASS_UNITS,
-    caption_line,
-    fmt,
-    new_figure,
-    open_target,
-    read_stored,
-    set_caption,
-    time_label,
-)
+from .shared import MASS_UNITS, finish, fmt, new_figure, stored_of, time_label
 
 if TYPE_CHECKING:
     from matplotlib.axes import Axes
@@ -96,15 +87,15 @@ def coarsening_figure(run: Run | str | os.PathLike[str]) -> Figure:
     Parameters
     ----------
     run
-        A summarised run, or its location.
+        A run whose summaries hold ``typical_mass_mean``, ``coarsening_length``
+        and their growth fits, or its location.
 
     Returns
     -------
     matplotlib.figure.Figure
         Two log-log panels: typical mass (left) and coarsening length (right).
     """
-    run = open_target(run)
-    stored = read_stored(run, NEEDS)
+    run, stored = stored_of(run, NEEDS)
     times = np.asarray(run.times)
     points = int(stored.options.get("fit_points", _FIT_POINTS))
     fig, axes = new_figure(2)
@@ -131,5 +122,4 @@ def coarsening_figure(run: Run | str | os.PathLike[str]) -> Figure:
     threshold = stored.provenance.get("threshold", {}).get("rule")
     if threshold:
         details.append(f"condensate: {threshold}")
-    set_caption(fig, caption_line(run, stored, details))
-    return fig
+    return finish(fig, run, stored, details)

@@ -23,16 +23,7 @@ import numpy as np
 
 from massarc.archive import Run
 
-from .shared import (
-    MASS_UNITS,
-    FigureError,
-    Stored,
-    caption_line,
-    new_figure,
-    open_target,
-    read_stored,
-    set_caption,
-)
+from .shared import MASS_UNITS, FigureError, Stored, finish, new_figure, stored_of
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -89,7 +80,8 @@ def correlation_figure(
     Parameters
     ----------
     run
-        A summarised run, or its location.
+        A run whose summaries hold ``correlation`` at the probes and
+        ``coarsening_length``, or its location.
     times
         Times (the run's units) to draw G at: the nearest stored probe to each. Default:
         ``curves`` probes spread over the run.
@@ -103,8 +95,7 @@ def correlation_figure(
     """
     from matplotlib import colormaps
 
-    run = open_target(run)
-    stored = read_stored(run, NEEDS)
+    run, stored = stored_of(run, NEEDS)
     g = stored["correlation"]
     probe_t = stored["probe_time"]
     probes = chosen_probes(probe_t, times, curves)
@@ -141,5 +132,4 @@ def correlation_figure(
             details.append(f"no condensate (l undefined) at t = {', '.join(gaps)}: left panel only")
     if times is not None:
         details.append("the probe nearest to each time asked")
-    set_caption(fig, caption_line(run, stored, details))
-    return fig
+    return finish(fig, run, stored, details)

@@ -21,7 +21,7 @@ import numpy as np
 from massarc.archive import Run
 
 from ..extremes import LAWS
-from .shared import MASS_UNITS, caption_line, fmt, new_figure, open_target, read_stored, set_caption
+from .shared import MASS_UNITS, finish, fmt, new_figure, stored_of
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -54,15 +54,15 @@ def extremes_figure(run: Run | str | os.PathLike[str]) -> Figure:
     Parameters
     ----------
     run
-        A summarised run, or its location.
+        A run whose summaries hold ``extreme_sample`` and its fitted laws, or
+        its location.
 
     Returns
     -------
     matplotlib.figure.Figure
         One panel.
     """
-    run = open_target(run)
-    stored = read_stored(run, NEEDS)
+    run, stored = stored_of(run, NEEDS)
     sample = stored["extreme_sample"]
     fits = stored.attrs("extreme_sample").get("fits") or {}
     fig, (ax,) = new_figure(1)
@@ -92,5 +92,4 @@ def extremes_figure(run: Run | str | os.PathLike[str]) -> Figure:
     ax.set_xlabel(f"largest mass ({MASS_UNITS})")
     ax.set_ylabel(f"probability density (1 / {MASS_UNITS})")
     ax.legend(fontsize="small")
-    set_caption(fig, caption_line(run, stored, details))
-    return fig
+    return finish(fig, run, stored, details)

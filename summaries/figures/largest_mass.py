@@ -19,15 +19,7 @@ import numpy as np
 
 from massarc.archive import Run
 
-from .shared import (
-    MASS_UNITS,
-    caption_line,
-    new_figure,
-    open_target,
-    read_stored,
-    set_caption,
-    time_label,
-)
+from .shared import MASS_UNITS, finish, new_figure, stored_of, time_label
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -51,7 +43,8 @@ def largest_mass_figure(run: Run | str | os.PathLike[str], *, log: bool = False)
     Parameters
     ----------
     run
-        A summarised run, or its location.
+        A run whose summaries hold the mean and variance of the largest mass
+        and their intervals, or its location.
     log
         Logarithmic time and value axes.
 
@@ -60,8 +53,7 @@ def largest_mass_figure(run: Run | str | os.PathLike[str], *, log: bool = False)
     matplotlib.figure.Figure
         Two panels: mean (left) and variance (right).
     """
-    run = open_target(run)
-    stored = read_stored(run, NEEDS)
+    run, stored = stored_of(run, NEEDS)
     times = np.asarray(run.times)
     probe_t = stored["probe_time"]
     confidence = stored.attrs("largest_mass_mean_ci").get("confidence")
@@ -91,5 +83,4 @@ def largest_mass_figure(run: Run | str | os.PathLike[str], *, log: bool = False)
         ax.legend(fontsize="small")
     n_rep = stored.provenance.get("extent", {}).get("replicas", run.n_replicas)
     details = [f"{n_rep} replicas", "log axes" if log else ""]
-    set_caption(fig, caption_line(run, stored, details))
-    return fig
+    return finish(fig, run, stored, details)

@@ -24,9 +24,9 @@ import numpy as np
 
 from massarc.archive import Run
 from massarc.schema import CMAMModel, ZRPModel
-from massarc.schema.laws import canonical_site_law
+from massarc.schema.laws import canonical_site_law, why_no_canonical_law
 
-from .shared import caption_line, new_figure, open_target, read_stored, set_caption
+from .shared import finish, new_figure, stored_of
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -61,14 +61,9 @@ def _total_mass(run: Run) -> int | None:
 
 def exact_law_reason(run: Run) -> str | None:
     """Why the exact ZRP law is not drawn for this run (None: it is)."""
-    meta = run.meta
-    if not isinstance(meta.model, ZRPModel):
-        return f"no exact law is known for family {meta.model.family}"
-    bounds = meta.lattice.boundary
-    if "open" in bounds:
-        return "no exact law is drawn: open boundaries"
-    if meta.model.drift == "asymmetric" and "reflecting" in bounds:
-        return "no exact law is drawn: asymmetric moves between walls"
+    why = why_no_canonical_law(run.meta)
+    if why is not None:
+        return f"no exact law is drawn: {why}"
     mass = _total_mass(run)
     if mass is None:
         return "no exact law is drawn: the run declares no total mass"
@@ -104,15 +99,14 @@ def occupation_figure(run: Run | str | os.PathLike[str]) -> Figure:
     Parameters
     ----------
     run
-        A summarised run, or its location.
+        A run whose summaries hold ``occupation``, or its location.
 
     Returns
     -------
     matplotlib.figure.Figure
         One panel: measured P(m), the exact ZRP law where it holds, the power-law guide.
     """
-    run = open_target(run)
-    stored = read_stored(run, NEEDS)
+    run, stored = stored_of(run, NEEDS)
     counts = stored["occupation"].astype(np.float64)
     total = counts.sum()
     top = len(counts) - 2  # the last bin is an overflow bin
@@ -155,5 +149,4 @@ def occupation_figure(run: Run | str | os.PathLike[str]) -> Figure:
     ax.set_xlabel("site mass m (mass units)")
     ax.set_ylabel("occupation probability P(m) (dimensionless)")
     ax.legend(fontsize="small")
-    set_caption(fig, caption_line(run, stored, details))
-    return fig
+    return finish(fig, run, stored, details)

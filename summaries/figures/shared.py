@@ -35,11 +35,13 @@ __all__ = [
     "FigureError",
     "Stored",
     "caption_line",
+    "finish",
     "fmt",
     "new_figure",
     "open_target",
     "read_stored",
     "set_caption",
+    "stored_of",
     "time_label",
     "window_words",
 ]
@@ -118,6 +120,13 @@ def read_stored(run: Run, needs: Sequence[str]) -> Stored:
     return Stored(run, summaries)
 
 
+def stored_of(run: Run | str | os.PathLike[str], needs: Sequence[str]) -> tuple[Run, Stored]:
+    """The run (opened read-only when a location is given) and its stored summaries, after
+    checking that every array in ``needs`` is there (:func:`read_stored`)."""
+    opened = open_target(run)
+    return opened, read_stored(opened, needs)
+
+
 def time_label(run: Run) -> str:
     """``time t (<the run's time units>)``."""
     units = run.meta.run.time_units if run.meta is not None else "model time"
@@ -187,3 +196,9 @@ def fmt(value: Any, digits: int = 3) -> str:
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return "-"
     return f"{value:.{digits}g}"
+
+
+def finish(fig: Figure, run: Run, stored: Stored | None, details: Sequence[str]) -> Figure:
+    """Add the caption line (run, window, ``details``) under the axes; return the figure."""
+    set_caption(fig, caption_line(run, stored, details))
+    return fig

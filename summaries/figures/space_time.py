@@ -21,16 +21,7 @@ import numpy as np
 
 from massarc.archive import Run
 
-from .shared import (
-    MASS_UNITS,
-    FigureError,
-    Stored,
-    caption_line,
-    new_figure,
-    open_target,
-    set_caption,
-    time_label,
-)
+from .shared import MASS_UNITS, FigureError, Stored, finish, new_figure, open_target, time_label
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -158,5 +149,4 @@ def space_time_figure(
     t_a, t_b = run.times[a], run.times[b - 1]
     details = [f"replica {replica}, snapshots {a}..{b - 1} (t = {t_a:.4g} .. {t_b:.4g} {units})",
                shown]  # fmt: skip
-    set_caption(fig, caption_line(run, stored, details))
-    return fig
+    return finish(fig, run, stored, details)
