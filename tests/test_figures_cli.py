@@ -100,6 +100,12 @@ def test_bad_input_is_one_line_with_status_2(run, tmp_path, args, message) -> No
     assert list(tmp_path.iterdir()) == [] and _tree(run) == before
 
 
+def test_a_collection_is_refused_naming_a_run_of_it(run, tmp_path) -> None:
+    res = _plot(str(run.parent), "occupation", "-o", str(tmp_path / "f.png"))
+    assert res.exit_code == 2
+    assert f"a collection, not a run; plot one of its runs, e.g. {run}" in res.stderr
+
+
 @pytest.mark.parametrize("name", [n for n in FIGURES if n != "space-time"])
 def test_missing_summaries_name_the_array_and_the_command(tmp_path, name) -> None:
     res = _plot(str(SAMPLE), name, "-o", str(tmp_path / "f.png"))

@@ -20,7 +20,7 @@ from typing import Any
 
 import click
 
-from massarc.archive import open_run
+from massarc.archive import NotARunError, open_run, open_runs
 from massarc.archive.store import local_path
 from massarc.summaries.figures import FIGURES
 
@@ -128,7 +128,11 @@ def command(
     if not target.parent.is_dir():
         die(_NAME, f"{output}: directory {target.parent} does not exist")
     with bad_input(_NAME):
-        opened = open_run(run)
+        try:
+            opened = open_run(run)
+        except NotARunError:
+            names = [r.name for r in open_runs(run)]  # raises when not a collection either
+            die(_NAME, f"{run}: a collection, not a run; plot one of its runs, e.g. {names[0]}")
         if _inside(target, local_path(run)):
             die(_NAME, f"{output}: lies inside the run {run}; plotting never writes into a run")
         fig = FIGURES[figure](opened, **options)
