@@ -88,4 +88,10 @@ print(f"typical condensate mass ~ t^a: a = {g['exponent']:.3f} +- {g['stderr']:.
 PY
 echo "CSV files for other plotting tools are in $WORK/observables/"
 
+say "9. Figures from the stored summaries (massarc plot; the runs are only read)"
+"$M" plot "$WORK/sweep/dune-strip.zarr" coarsening -o "$WORK/dune-strip-coarsening.png"
+"$M" plot "$WORK/sweep/depot-ring.zarr" occupation -o "$WORK/depot-ring-occupation.svg"
+"$M" plot "$WORK/sweep/depot-ring-unsettled.zarr" space-time -o "$WORK/depot-ring-unsettled.pdf"
+ls "$WORK"/*.png "$WORK"/*.svg "$WORK"/*.pdf
+
 say "Done. Outputs are in $WORK/"

@@ -50,6 +50,7 @@ __all__ = [
     "relaxation_time",
     "site_weights",
     "tilt_to_density",
+    "why_no_canonical_law",
 ]
 
 # Above this many masses np.convolve (exact, O(M^2)) gives way to FFT convolution.
@@ -175,6 +176,26 @@ def canonical_site_law(model: ZRPModel, volume: int, mass: int) -> np.ndarray:
     rest = convolution_power(p, volume - 1, mass)
     law = p * rest[::-1]
     return law / law.sum()
+
+
+def why_no_canonical_law(meta: RunMeta) -> str | None:
+    """Why :func:`canonical_site_law` is not the steady state of the declared model and
+    lattice (None: it is, for a ZRP on a ring or torus with any drift, or with symmetric
+    moves between walls).
+
+    >>> from massarc.schema import parse_metadata
+    >>> why_no_canonical_law(parse_metadata({"model": {"family": "zrp", "b": 4.0},
+    ...     "lattice": {"sites": [8], "boundary": "open"}, "run": {"regime": "stationary"}}))
+    'open boundaries: the canonical law does not hold'
+    """
+    if not isinstance(meta.model, ZRPModel):
+        return f"no exact stationary law is known for family {meta.model.family}"
+    bounds = meta.lattice.boundary
+    if "open" in bounds:
+        return "open boundaries: the canonical law does not hold"
+    if meta.model.drift == "asymmetric" and "reflecting" in bounds:
+        return "asymmetric moves between walls: the steady state is not homogeneous"
+    return None
 
 
 def critical_density(meta_model: ZRPModel | CMAMModel | object) -> float | None:

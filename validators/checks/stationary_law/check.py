@@ -39,7 +39,7 @@ from typing import Any, ClassVar
 import numpy as np
 
 from massarc.schema import ZRPModel
-from massarc.schema.laws import canonical_site_law
+from massarc.schema.laws import canonical_site_law, why_no_canonical_law
 
 from ...analysis.window import stationary_window
 from ...engine.registry import Check, CheckContext, Option
@@ -53,17 +53,12 @@ _MAX_MASSES = 64
 
 
 def _why_no_law(meta: Any) -> str | None:
-    """Why the exact law does not apply to the declared model and lattice (None: it does)."""
-    if not isinstance(meta.model, ZRPModel):
-        return f"no exact stationary law is known for family {meta.model.family}"
-    bounds = meta.lattice.boundary
-    if "open" in bounds:
-        return "open boundaries: the canonical law does not hold"
-    if meta.model.drift == "asymmetric" and "reflecting" in bounds:
-        return "asymmetric moves between walls: the steady state is not homogeneous"
-    if meta.run.regime == "transient":
+    """Why the exact law does not apply to the declared model, lattice and regime (None: it
+    does)."""
+    why = why_no_canonical_law(meta)
+    if why is None and meta.run.regime == "transient":
         return "the run declares a transient regime"
-    return None
+    return why
 
 
 def _label(group: tuple[int, int], top: int) -> str:
