@@ -5,6 +5,13 @@ p-value a copied replica would get: ``pair_tests``) on the largest mass, the sum
 squares and the number of occupied sites of every snapshot (the ``snapshots``
 statistic), and on the coarse profiles of the ``profiles`` statistic; Bonferroni over
 pairs and observables (the ``independence`` check).
+
+A long series is first averaged over blocks of consecutive snapshots, so that at most
+:data:`MAX_POINTS` values per replica remain (a block holding an unreadable snapshot is
+left out). The test stays exact under its null: block means of independent, exchangeable
+replicas are independent and exchangeable, and a copied replica has the same block means
+as its original. It bounds the cost of the ranks and autocorrelations on long runs
+(measured: 0.36 s of the 0.56 s of the check on a 1 GiB run of 67109 snapshots).
 """
 
 from __future__ import annotations
@@ -15,7 +22,26 @@ import numpy as np
 
 from ...analysis.replica_tests import PairTest, pair_tests
 
-__all__ = ["correlation_tests"]
+__all__ = ["MAX_POINTS", "block_means", "correlation_tests"]
+
+#: Values per replica the pair tests see at most (longer series are block-averaged).
+MAX_POINTS = 8192
+
+
+def block_means(x: np.ndarray, most: int = MAX_POINTS) -> np.ndarray:
+    """``x`` (replica, time, ...) averaged over blocks of consecutive times so that at most
+    ``most`` remain (unchanged when it is short enough; NaN where a block holds one; the
+    last snapshots that do not fill a block are left out).
+
+    >>> block_means(np.arange(10.0)[None, :], 4).tolist()
+    [[1.0, 4.0, 7.0]]
+    """
+    t = x.shape[1]
+    if t <= most:
+        return x
+    size = -(-t // most)
+    n = t // size
+    return x[:, : n * size].reshape(x.shape[0], n, size, *x.shape[2:]).mean(axis=2)
 
 
 def correlation_tests(
@@ -40,7 +66,7 @@ def correlation_tests(
     for name, x in series.items():
         if np.nanmax(x) == np.nanmin(x):
             continue
-        tests, copy_p = pair_tests(x, stationary=stationary)
+        tests, copy_p = pair_tests(block_means(x), stationary=stationary)
         tried += len(tests)
         out.extend((name, t) for t in tests)
         copy = min(copy, copy_p)
