@@ -18,6 +18,9 @@ instead of turning every chunk into a corrupt one.
 
 from __future__ import annotations
 
+import itertools
+import math
+from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -27,9 +30,10 @@ from numcodecs import blosc
 from zarr.codecs import BloscCodec, BytesCodec, Crc32cCodec
 from zarr.storage import LocalStore
 
+from .errors import ChunkError
 from .reader import Chunk, ChunkRef, Run
 
-__all__ = ["ChunkReader", "CorruptChunk", "MissingChunk"]
+__all__ = ["ChunkReader", "CorruptChunk", "MissingChunk", "checked_chunks", "missing_chunks"]
 
 
 class MissingChunk(FileNotFoundError):
@@ -140,3 +144,59 @@ class ChunkReader:
         n = ref.stop - ref.start
         mass = out[:n] if n < rows else out
         return Chunk(ref.replica, ref.start, ref.stop, mass, ref.key)
+
+
+def _stored_keys(run: Run) -> tuple[set[str], str] | None:
+    """Every key stored under the ``mass`` array, listed once; None if the store cannot list."""
+    from zarr.core.sync import collect_aiterator
+
+    try:
+        arr = run.mass
+        path = arr.store_path.path
+        prefix = f"{path}/" if path else ""
+        keys = collect_aiterator(arr.store_path.store.list_prefix(prefix))
+        return set(keys), prefix
+    except Exception:  # a store that cannot list: missing chunks then read as the sentinel
+        return None
+
+
+def missing_chunks(run: Run, refs: list[ChunkRef]) -> dict[int, str]:
+    """Chunks with a storage object absent from the store, by position in ``refs``."""
+    listed = _stored_keys(run)
+    if listed is None or not refs:
+        return {}
+    stored, prefix = listed
+    arr = run.mass
+    grid = tuple(arr.shards or arr.chunks)
+    lattice = [range(math.ceil(n / g)) for n, g in zip(arr.shape[2:], grid[2:], strict=True)]
+    encode = arr.metadata.encode_chunk_key
+    out: dict[int, str] = {}
+    for i, ref in enumerate(refs):
+        times = range(ref.start // grid[1], (ref.stop - 1) // grid[1] + 1)
+        for t, rest in itertools.product(times, itertools.product(*lattice)):
+            key = prefix + encode((ref.replica // grid[0], t, *rest))
+            if key not in stored:
+                out[i] = f"{key}: not in the store (it would read as the fill value)"
+                break
+    return out
+
+
+def checked_chunks(run: Run) -> Iterator[Chunk]:
+    """Every committed chunk of ``run``, decoded, replica-major then time; a chunk that is
+    missing (zarr would read it as the fill value) or corrupt raises :class:`ChunkError`
+    naming it, so that no reader of this function mistakes the sentinel for data."""
+    refs = run.chunk_refs()
+    reader = ChunkReader(run)
+    missing = {} if reader.direct else missing_chunks(run, refs)
+    for i, ref in enumerate(refs):
+        where = f"replica {ref.replica}, snapshots {ref.start}..{ref.stop - 1}"
+        if i in missing:
+            raise ChunkError(f"{run.name}: chunk {ref.key} ({where}) is missing: {missing[i]}")
+        try:
+            yield reader.read(ref)
+        except MissingChunk as exc:
+            raise ChunkError(f"{run.name}: chunk {ref.key} ({where}) is missing: {exc}") from None
+        except CorruptChunk as exc:
+            raise ChunkError(
+                f"{run.name}: chunk {ref.key} ({where}) is corrupt: {_first_line(exc)}"
+            ) from None

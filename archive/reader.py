@@ -206,9 +206,13 @@ class Run:
         return Chunk(ref.replica, ref.start, ref.stop, data, ref.key)
 
     def chunks(self) -> Iterator[Chunk]:
-        """Decoded chunks one at a time, replica-major then time (memory: one chunk)."""
-        for ref in self.chunk_refs():
-            yield self.read_chunk(ref)
+        """Decoded chunks one at a time, replica-major then time (memory: one chunk).
+
+        A missing or corrupt chunk raises :class:`~massarc.archive.errors.ChunkError`
+        naming it: zarr alone would read a missing chunk as the fill value."""
+        from ._chunk_read import checked_chunks  # it imports this module
+
+        yield from checked_chunks(self)
 
     def read(self, replica: int, start: int = 0, stop: int | None = None) -> np.ndarray:
         """Masses of one replica for snapshots [start, stop), as ``(time, *lattice)``."""
