@@ -76,13 +76,27 @@ class Run:
     name: str
     header: ArchiveHeader | None
     problems: list[str] = field(default_factory=list)
+    #: Members whose Zarr metadata cannot be read, with the reason: ``{"mass": "..."}``.
+    unreadable: dict[str, str] = field(default_factory=dict)
     _members: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     def _member(self, key: str) -> Any:
-        """``group.get(key)``, looked up once: a Zarr group lookup costs a store read."""
+        """``group.get(key)``, looked up once: a Zarr group lookup costs a store read.
+        A member whose metadata zarr cannot parse reads as absent, and the reason goes
+        to :attr:`unreadable` (the ``schema`` check reports it)."""
         if key not in self._members:
-            self._members[key] = self.group.get(key)
+            try:
+                self._members[key] = self.group.get(key)
+            except Exception as exc:  # zarr raises many kinds for metadata it cannot parse
+                self.unreadable[key] = f"{key}/zarr.json: {_first_line(exc)}"
+                self._members[key] = None
         return self._members[key]
+
+    def array(self, key: str) -> zarr.Array | None:
+        """The member array ``key`` (``"mass"``, ``"time"``...), or None when it is absent,
+        not an array, or its metadata cannot be read (see :attr:`unreadable`)."""
+        arr = self._member(key)
+        return arr if isinstance(arr, zarr.Array) else None
 
     # -- what the run is ---------------------------------------------------------------
 
@@ -107,7 +121,8 @@ class Run:
         """The raw Zarr array (its shape may exceed the committed extent after a crash)."""
         arr = self._member(MASS)
         if not isinstance(arr, zarr.Array):
-            raise ArchiveError(f"{self.name}: no '{MASS}' array")
+            why = self.unreadable.get(MASS, f"no '{MASS}' array")
+            raise ArchiveError(f"{self.name}: {why}")
         return arr
 
     @property
@@ -235,10 +250,17 @@ def _is_run(group: zarr.Group) -> bool:
     return isinstance(raw, dict) and raw.get("format") == RUN_KIND
 
 
-def _run_dirs(root: Path) -> list[Path]:
-    """Directories below ``root`` whose ``zarr.json`` is a massarc run, in name order.
-    The walk does not descend into Zarr nodes (a run's arrays, or runs inside runs)."""
-    found = []
+def _first_line(exc: BaseException) -> str:
+    lines = str(exc).strip().splitlines()
+    return f"{type(exc).__name__}: {lines[0][:200]}" if lines else type(exc).__name__
+
+
+def _run_dirs(root: Path) -> list[tuple[Path, str | None]]:
+    """Directories below ``root`` whose ``zarr.json`` is a massarc run, in name order, each
+    with None; or whose ``zarr.json`` cannot be read as JSON, each with the reason (a
+    collection lists the runs it cannot read too). The walk does not descend into Zarr
+    nodes (a run's arrays, or runs inside runs)."""
+    found: list[tuple[Path, str | None]] = []
     for here, dirs, _files in os.walk(root):
         dirs.sort()
         node = Path(here) / "zarr.json"
@@ -246,14 +268,41 @@ def _run_dirs(root: Path) -> list[Path]:
             dirs.clear()
             try:
                 doc = json.loads(node.read_text(encoding="utf-8"))
-            except (OSError, ValueError):
+            except (OSError, ValueError) as exc:
+                found.append((Path(here), f"{node}: cannot be read as JSON ({_first_line(exc)})"))
+                continue
+            if not isinstance(doc, dict):
+                found.append(
+                    (Path(here), f"{node}: expected a JSON object; got {type(doc).__name__}")
+                )
                 continue
             attrs = doc.get("attributes") or {}
             raw = attrs.get(ATTRIBUTE_KEY) if isinstance(attrs, dict) else None
             is_group = doc.get("node_type") == "group"
             if is_group and isinstance(raw, dict) and raw.get("format") == RUN_KIND:
-                found.append(Path(here))
+                found.append((Path(here), None))
     return found
+
+
+def _broken(name: str, problem: str) -> Run:
+    """A run that cannot be opened, as a run without header or arrays: ``problems`` says
+    why, so that a collection still lists it and ``schema`` reports it."""
+    empty = zarr.open_group(zarr.storage.MemoryStore(), mode="w", zarr_format=3)
+    return Run(empty, name, None, problems=[problem])
+
+
+def _from_dir(path: Path, problem: str | None, lenient: bool) -> Run:
+    """The run at ``path`` found by :func:`_run_dirs`; a broken one raises unless lenient."""
+    if problem is None:
+        try:
+            return _from_group(_open_group(path), str(path), lenient)
+        except MetadataError:
+            raise
+        except Exception as exc:  # zarr refuses the group's metadata
+            problem = f"{path}/zarr.json: {_first_line(exc)}"
+    if not lenient:
+        raise ArchiveError(problem)
+    return _broken(str(path), problem)
 
 
 def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
@@ -296,7 +345,7 @@ def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
     name = location_name(location)
     path = local_path(location)
     if path is not None and path.is_dir() and not (path / "zarr.json").exists():
-        runs = [_from_group(_open_group(d), str(d), lenient) for d in _run_dirs(path)]
+        runs = [_from_dir(d, problem, lenient) for d, problem in _run_dirs(path)]
         if not runs:
             raise NotARunError(f"{name}: directory holds no massarc run")
         return runs
@@ -305,6 +354,10 @@ def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
         return [_from_group(group, name, lenient)]
     raw = group.attrs.get(ATTRIBUTE_KEY)
     is_collection = isinstance(raw, dict) and raw.get("format") == COLLECTION_KIND
+    if path is not None and path.is_dir():  # a local group: children zarr cannot read count
+        found = _run_dirs(path)
+        if found:
+            return [_from_dir(d, problem, lenient) for d, problem in found]
     runs = []
     for key, child in sorted(group.groups()):
         if _is_run(child):

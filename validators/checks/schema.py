@@ -14,7 +14,6 @@ from __future__ import annotations
 from typing import Any, ClassVar
 
 import numpy as np
-import zarr
 
 from massarc.schema import WriteState, mass_dimensions
 from massarc.schema.spec import MASS, TIME
@@ -30,9 +29,9 @@ def _array_problems(ctx: CheckContext) -> list[tuple[str, dict[str, Any]]]:
     run, meta = ctx.run, ctx.meta
     assert meta is not None
     out: list[tuple[str, dict[str, Any]]] = []
-    mass = run.group.get(MASS)
-    if not isinstance(mass, zarr.Array):
-        return [(f"no '{MASS}' array in the run", {})]
+    mass = run.array(MASS)
+    if mass is None:
+        return [(run.unreadable.get(MASS, f"no '{MASS}' array in the run"), {})]
     sites = tuple(meta.lattice.sites)
     dims = tuple(mass.metadata.dimension_names or ())
     want = mass_dimensions(len(sites))
@@ -43,9 +42,9 @@ def _array_problems(ctx: CheckContext) -> list[tuple[str, dict[str, Any]]]:
     if np.dtype(mass.dtype).kind not in "ui":
         out.append((f"mass dtype: expected an integer dtype; got {mass.dtype}", {}))
     out.extend((text, {}) for text in _marker_problems(run.state, tuple(mass.shape)))
-    time = run.group.get(TIME)
-    if not isinstance(time, zarr.Array):
-        out.append((f"no '{TIME}' array in the run", {}))
+    time = run.array(TIME)
+    if time is None:
+        out.append((run.unreadable.get(TIME, f"no '{TIME}' array in the run"), {}))
     elif time.ndim != 1 or time.shape[0] != mass.shape[1]:
         out.append(
             (
