@@ -4,9 +4,11 @@ Checked: the header validates (a lenient open lists its problems); ``mass`` has 
 dimension names of format v1, the lattice shape of ``lattice.sites`` and an integer dtype;
 ``time`` is 1-D with one entry per snapshot; the declared total mass (or density) is the
 mass of the first snapshot of every replica (that it stays so is ``conservation``'s job);
-``run.seeds`` has one seed per replica; the commit marker ``state`` does not run ahead
-of the arrays, and a complete run commits at least one snapshot. An archive whose writer
-did not finish (``state.complete`` false) is a warning that names the committed extent.
+``run.seeds`` has one seed per replica (at least one per committed replica while the run
+is incomplete: it declares the replicas still to come); the commit marker ``state`` does
+not run ahead of the arrays, and a complete run commits at least one snapshot. An archive
+whose writer did not finish (``state.complete`` false) is a warning that names the
+committed extent.
 """
 
 from __future__ import annotations
@@ -54,9 +56,17 @@ def _array_problems(ctx: CheckContext) -> list[tuple[str, dict[str, Any]]]:
             )
         )
     seeds = meta.run.seeds
-    if seeds is not None and len(seeds) != run.n_replicas:
+    if seeds is not None and run.complete and len(seeds) != run.n_replicas:
         out.append(
             (f"run.seeds: expected {run.n_replicas} seeds (one per replica); got {len(seeds)}", {})
+        )
+    elif seeds is not None and len(seeds) < run.n_replicas:  # a partial run declares them all
+        out.append(
+            (
+                f"run.seeds: expected at least {run.n_replicas} seeds (one per committed "
+                f"replica); got {len(seeds)}",
+                {},
+            )
         )
     out.extend(_total_problems(ctx))
     return out
