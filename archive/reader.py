@@ -164,10 +164,35 @@ class Run:
             arr = self._member(TIME)
             times = np.empty(0)
             if isinstance(arr, zarr.Array):
-                times = np.asarray(arr[: self.n_snapshots], dtype=np.float64)
+                times = self._read_times(arr)
+            elif self.n_snapshots:
+                why = self.unreadable.get(TIME, f"no '{TIME}' array")
+                raise ArchiveError(f"{self.name}: {why}")
             times.setflags(write=False)
             self._members["times"] = times
         return self._members["times"]
+
+    def _read_times(self, arr: zarr.Array) -> np.ndarray:
+        """``time[:T]``, chunk by chunk: one that does not decode raises
+        :class:`ArchiveError` naming it (a missing one reads as NaN, the fill value, which
+        ``time-order`` reports as not finite)."""
+        n = self.n_snapshots
+        if arr.ndim != 1 or arr.shape[0] < n:
+            raise ArchiveError(
+                f"{self.name}: {TIME}: expected shape [{n}] or longer; got {list(arr.shape)}"
+            )
+        step = int(arr.chunks[0])
+        out = np.empty(n, dtype=np.float64)
+        for k, lo in enumerate(range(0, n, step)):
+            hi = min(lo + step, n)
+            key = f"{TIME}/{arr.metadata.encode_chunk_key((k,))}"
+            try:
+                out[lo:hi] = np.asarray(arr[lo:hi], dtype=np.float64)
+            except Exception as exc:  # zarr's codecs raise several kinds
+                raise ArchiveError(
+                    f"{self.name}: {key} (snapshots {lo}..{hi - 1}) is corrupt: {_first_line(exc)}"
+                ) from None
+        return out
 
     @property
     def nbytes(self) -> int:
@@ -327,6 +352,8 @@ def _open_group(location: Location) -> zarr.Group:
         return zarr.open_group(store, mode="r", zarr_format=3, use_consolidated=False)
     except (FileNotFoundError, zarr.errors.GroupNotFoundError, KeyError):
         raise NotARunError(f"{name}: not a Zarr v3 group") from None
+    except Exception as exc:  # e.g. a zarr.json that is not JSON, a file that is not a zip
+        raise ArchiveError(f"{name}: cannot open as a Zarr v3 group ({_first_line(exc)})") from None
 
 
 def open_run(location: Location, *, lenient: bool = False) -> Run:

@@ -10,6 +10,7 @@
 from __future__ import annotations
 
 import os
+import zipfile
 from pathlib import Path
 from urllib.parse import unquote, urlparse
 
@@ -65,6 +66,8 @@ def open_store(location: Location, mode: str = "r") -> Store:
             )
         if not path.is_file():
             raise ArchiveError(f"{text}: no such zip file")
+        if not zipfile.is_zipfile(path):
+            raise ArchiveError(f"{text}: expected a zip file; got other content")
         return ZipStore(path, mode="r")
     if path is not None:
         if read_only and not path.exists():

@@ -17,7 +17,6 @@ or more blank lines. Replicas come in order.
 
 from __future__ import annotations
 
-import json
 import os
 import re
 import select
@@ -27,7 +26,7 @@ from typing import Any, BinaryIO
 
 import numpy as np
 
-from massarc.schema import MetadataError
+from massarc.schema import MetadataError, load_json
 
 from ..errors import DataError
 from ._scan import DATA, ERR_EMPTY, ERR_LEAD, ERR_LONG, scan_lines
@@ -153,7 +152,7 @@ def meta_line(text: bytes, name: str, line: int) -> dict[str, Any] | None:
     if not decoded.startswith(META_PREFIX):
         return None
     try:
-        data = json.loads(decoded[len(META_PREFIX) :])
+        data = load_json(decoded[len(META_PREFIX) :])
     except ValueError as exc:
         raise MetadataError(
             [f"expected JSON after '{META_PREFIX}'; got invalid JSON ({exc})"],
