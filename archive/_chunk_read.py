@@ -30,10 +30,19 @@ from numcodecs import blosc
 from zarr.codecs import BloscCodec, BytesCodec, Crc32cCodec
 from zarr.storage import LocalStore
 
+from massarc.schema.spec import TIME
+
 from .errors import ChunkError
 from .reader import Chunk, ChunkRef, Run
 
-__all__ = ["ChunkReader", "CorruptChunk", "MissingChunk", "checked_chunks", "missing_chunks"]
+__all__ = [
+    "ChunkReader",
+    "CorruptChunk",
+    "MissingChunk",
+    "checked_chunks",
+    "missing_chunks",
+    "missing_time_chunks",
+]
 
 
 class MissingChunk(FileNotFoundError):
@@ -160,8 +169,10 @@ def _stored_keys(run: Run) -> tuple[set[str], str] | None:
         return None
 
 
-def missing_chunks(run: Run, refs: list[ChunkRef]) -> dict[int, str]:
-    """Chunks with a storage object absent from the store, by position in ``refs``."""
+def missing_chunks(run: Run, refs: list[ChunkRef]) -> dict[int, tuple[str, str]]:
+    """Chunks with a storage object absent from the store, by position in ``refs``: the
+    key of the first absent object (with chunks that split the lattice, not necessarily
+    the ref's own key, which names site 0) and a message."""
     listed = _stored_keys(run)
     if listed is None or not refs:
         return {}
@@ -170,14 +181,39 @@ def missing_chunks(run: Run, refs: list[ChunkRef]) -> dict[int, str]:
     grid = tuple(arr.shards or arr.chunks)
     lattice = [range(math.ceil(n / g)) for n, g in zip(arr.shape[2:], grid[2:], strict=True)]
     encode = arr.metadata.encode_chunk_key
-    out: dict[int, str] = {}
+    out: dict[int, tuple[str, str]] = {}
     for i, ref in enumerate(refs):
         times = range(ref.start // grid[1], (ref.stop - 1) // grid[1] + 1)
         for t, rest in itertools.product(times, itertools.product(*lattice)):
             key = prefix + encode((ref.replica // grid[0], t, *rest))
             if key not in stored:
-                out[i] = f"{key}: not in the store (it would read as the fill value)"
+                out[i] = (key, f"{key}: not in the store (it would read as the fill value)")
                 break
+    return out
+
+
+def missing_time_chunks(run: Run) -> list[tuple[str, int, int]]:
+    """``(key, start, stop)`` of every chunk of ``time`` over the committed snapshots whose
+    storage object is absent (zarr reads it as NaN, the fill value); empty when the store
+    cannot be listed or the run has no readable ``time``."""
+    from zarr.core.sync import collect_aiterator
+
+    arr = run.array(TIME)
+    n = run.n_snapshots
+    if arr is None or arr.ndim != 1 or n == 0:
+        return []
+    try:
+        path = arr.store_path.path
+        prefix = f"{path}/" if path else ""
+        stored = set(collect_aiterator(arr.store_path.store.list_prefix(prefix)))
+    except Exception:  # a store that cannot list
+        return []
+    step = int((arr.shards or arr.chunks)[0])
+    out = []
+    for k, lo in enumerate(range(0, n, step)):
+        key = prefix + arr.metadata.encode_chunk_key((k,))
+        if key not in stored:
+            out.append((key, lo, min(lo + step, n)))
     return out
 
 
@@ -191,7 +227,8 @@ def checked_chunks(run: Run) -> Iterator[Chunk]:
     for i, ref in enumerate(refs):
         where = f"replica {ref.replica}, snapshots {ref.start}..{ref.stop - 1}"
         if i in missing:
-            raise ChunkError(f"{run.name}: chunk {ref.key} ({where}) is missing: {missing[i]}")
+            key, why = missing[i]
+            raise ChunkError(f"{run.name}: chunk {key} ({where}) is missing: {why}")
         try:
             yield reader.read(ref)
         except MissingChunk as exc:

@@ -42,7 +42,13 @@ from typing import Any, ClassVar, Generic, TypeVar
 
 import numpy as np
 
-from ._chunk_read import ChunkReader, CorruptChunk, MissingChunk, missing_chunks
+from ._chunk_read import (
+    ChunkReader,
+    CorruptChunk,
+    MissingChunk,
+    missing_chunks,
+    missing_time_chunks,
+)
 from .progress import Progress
 from .reader import Chunk, ChunkRef, Run
 from .registry import Registry
@@ -56,6 +62,7 @@ __all__ = [
     "available_statistics",
     "default_workers",
     "get_statistic",
+    "missing_time_chunks",
     "register_statistic",
     "scan",
 ]
@@ -72,6 +79,13 @@ class ChunkFault:
     ref: ChunkRef
     kind: str
     message: str
+    #: The storage key at fault when it is not ``ref.key`` (chunks that split the lattice).
+    key: str = ""
+
+    @property
+    def chunk(self) -> str:
+        """The storage key at fault."""
+        return self.key or self.ref.key
 
 
 class Statistic(ABC):
@@ -375,7 +389,8 @@ def scan(
                 if i is None:
                     break
                 if i in missing:
-                    fault = ChunkFault(refs[i], "missing", missing[i])
+                    key, why = missing[i]
+                    fault = ChunkFault(refs[i], "missing", why, key)
                     state.resolve(_ChunkOutcome(i, fault=fault))
                     tick()
                     continue
