@@ -26,6 +26,7 @@ from typing import Any
 
 import numpy as np
 import zarr
+from zarr.storage import LocalStore
 
 from massarc.schema import ArchiveHeader, MetadataError, RunMeta, WriteState, parse_header
 from massarc.schema.spec import (
@@ -38,6 +39,7 @@ from massarc.schema.spec import (
 )
 
 from .errors import ArchiveError, NotARunError
+from .limits import extent_problem, max_ratio, needs_listing, stored_size
 from .store import Location, local_path, location_name, open_store
 
 __all__ = ["Chunk", "ChunkRef", "Run", "open_run", "open_runs"]
@@ -86,11 +88,45 @@ class Run:
         to :attr:`unreadable` (the ``schema`` check reports it)."""
         if key not in self._members:
             try:
-                self._members[key] = self.group.get(key)
+                value = self.group.get(key)
             except Exception as exc:  # zarr raises many kinds for metadata it cannot parse
                 self.unreadable[key] = f"{key}/zarr.json: {_first_line(exc)}"
-                self._members[key] = None
+                value = None
+            if key == MASS and isinstance(value, zarr.Array):
+                problem = self._extent_problem(value)
+                if problem is not None:
+                    self.unreadable[key] = f"{MASS}: {problem}"
+                    value = None
+            self._members[key] = value
         return self._members[key]
+
+    def _extent_problem(self, arr: zarr.Array) -> str | None:
+        """Why the committed extent of ``arr`` cannot be real (see
+        :func:`~massarc.archive.limits.extent_problem`); checked before any chunk list is
+        built, so that a few-KB archive cannot claim 10^15 snapshots."""
+        shape = tuple(int(n) for n in arr.shape)
+        if len(shape) < 3:
+            return None  # the schema check reports the dimensions
+        reps, snaps = shape[0], shape[1]
+        if self.header is not None:
+            st = self.header.state
+            reps, snaps = min(reps, st.replicas), min(snaps, st.snapshots)
+        lattice = shape[2:]
+        itemsize = np.dtype(arr.dtype).itemsize
+        declared = reps * snaps * math.prod(lattice) * itemsize
+        if not needs_listing(declared):
+            return None
+        store = arr.store_path.store
+        if isinstance(store, LocalStore):
+            path = arr.store_path.path
+            root = Path(store.root) / path if path else Path(store.root)
+            stored = stored_size(root, declared // max_ratio() + 1)
+        else:
+            try:
+                stored = int(arr.nbytes_stored())
+            except Exception:  # a store that cannot tell: judged as empty
+                stored = 0
+        return extent_problem(reps, snaps, lattice, itemsize, stored)
 
     def array(self, key: str) -> zarr.Array | None:
         """The member array ``key`` (``"mass"``, ``"time"``...), or None when it is absent,
@@ -342,7 +378,10 @@ def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
         if not lenient:
             raise
         return Run(group, name, None, problems=list(exc.problems))
-    return Run(group, name, header)
+    run = Run(group, name, header)
+    if not lenient and run.array(MASS) is None and MASS in run.unreadable:
+        raise ArchiveError(f"{name}: {run.unreadable[MASS]}")
+    return run
 
 
 def _open_group(location: Location) -> zarr.Group:

@@ -28,7 +28,7 @@ def _size_text(n: float) -> str:
 
 def _text_lines(f: dict[str, Any]) -> list[str]:
     if "problems" in f:
-        return [f"{f['path']}", "  metadata invalid: " + "; ".join(f["problems"])]
+        return [f"{f['path']}", "  unreadable: " + "; ".join(f["problems"])]
     sites = " x ".join(str(s) for s in f["lattice"])
     bounds = ", ".join(f["boundary"])
     out = [

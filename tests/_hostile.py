@@ -1,0 +1,38 @@
+"""Running massarc on hostile input in a child process that cannot take the machine down:
+an address-space cap (``RLIMIT_AS``) and a timeout, so that a regression shows as a failed
+test, not as a machine out of memory or a hung suite."""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+__all__ = ["MEMORY_CAP", "capped_massarc"]
+
+#: Address space of the child: enough for Python, numpy, zarr and numba to import.
+MEMORY_CAP = 1 << 30
+MASSARC = str(Path(sys.executable).with_name("massarc"))
+
+
+#: Sets the cap, then becomes massarc (no preexec_fn: the test process may run threads).
+_LAUNCH = (
+    "import os, resource, sys; "
+    "resource.setrlimit(resource.RLIMIT_AS, (int(sys.argv[1]), int(sys.argv[1]))); "
+    "os.execv(sys.argv[2], sys.argv[2:])"
+)
+
+
+def capped_massarc(*args: str, timeout: float = 60.0) -> subprocess.CompletedProcess[str]:
+    """``massarc ARGS`` under the memory cap; raises ``subprocess.TimeoutExpired`` when it
+    does not finish in ``timeout`` seconds (the child is killed)."""
+    env = {**os.environ, "OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
+    return subprocess.run(
+        [sys.executable, "-c", _LAUNCH, str(MEMORY_CAP), MASSARC, *args],
+        capture_output=True,
+        text=True,
+        timeout=timeout,
+        env=env,
+        check=False,
+    )
