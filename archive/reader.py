@@ -38,6 +38,7 @@ from massarc.schema.spec import (
     TIME,
 )
 
+from .allow import run_problem
 from .errors import ArchiveError, NotARunError
 from .limits import extent_problem, max_ratio, needs_listing, stored_size
 from .store import Location, local_path, location_name, open_store
@@ -379,6 +380,11 @@ def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
             raise
         return Run(group, name, None, problems=list(exc.problems))
     run = Run(group, name, header)
+    path = group.store_path.path
+    refused = run_problem(group.store_path.store, f"{path}/" if path else "")
+    if refused is not None:  # nothing of the run is decoded: its arrays read as absent
+        run.unreadable[MASS] = refused
+        run._members.update({MASS: None, TIME: None})
     if not lenient and run.array(MASS) is None and MASS in run.unreadable:
         raise ArchiveError(f"{name}: {run.unreadable[MASS]}")
     return run
