@@ -225,7 +225,7 @@ class Run:
             key = f"{TIME}/{arr.metadata.encode_chunk_key((k,))}"
             try:
                 out[lo:hi] = np.asarray(arr[lo:hi], dtype=np.float64)
-            except Exception as exc:  # zarr's codecs raise several kinds
+            except (ValueError, RuntimeError) as exc:  # zarr's codecs: checksum, decoding
                 raise ArchiveError(
                     f"{self.name}: {key} (snapshots {lo}..{hi - 1}) is corrupt: {_first_line(exc)}"
                 ) from None
