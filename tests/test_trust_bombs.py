@@ -9,6 +9,7 @@ to what zarr-python itself decodes (the bound does not refuse real chunks)."""
 from __future__ import annotations
 
 import json
+import zipfile
 import zlib
 from pathlib import Path
 
@@ -101,3 +102,23 @@ def test_honest_chunks_of_other_compressors_read_as_zarr_reads_them(
     )
     np.testing.assert_array_equal(got, expected)
     np.testing.assert_array_equal(opened.times, np.arange(30) * 0.5)
+
+
+def test_zip_member_that_expands_beyond_the_cap(tmp_path: Path) -> None:
+    run = write_run(tmp_path / "run.zarr", replicas=2, snapshots=20, chunk=10)
+    target = sorted(p for p in (run / "mass" / "c").rglob("*") if p.is_file())[0]
+    archive = tmp_path / "run.zip"
+    with zipfile.ZipFile(archive, "w", zipfile.ZIP_DEFLATED) as z:
+        for f in sorted(run.rglob("*")):
+            if f.is_file() and f != target:
+                z.write(f, f.relative_to(run).as_posix())
+        with z.open(target.relative_to(run).as_posix(), "w", force_zip64=True) as member:
+            block = b"\0" * (1 << 20)
+            for _ in range(1536):  # 1.5 GiB of zeros in about 1.5 MB
+                member.write(block)
+    assert archive.stat().st_size < 10 << 20
+    name = target.relative_to(run).as_posix()
+    for command in ("check", "info"):
+        res = capped_massarc(command, str(archive), timeout=120)
+        assert res.returncode == 2, res.stderr[-2000:]
+        assert f"member {name}: " in res.stderr and len(res.stderr.strip().splitlines()) == 1
