@@ -20,6 +20,8 @@ from __future__ import annotations
 
 import itertools
 import math
+import os
+import stat
 from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -33,6 +35,7 @@ from zarr.storage import LocalStore
 from massarc.schema.spec import TIME
 
 from .errors import ChunkError
+from .limits import max_chunk_bytes
 from .reader import Chunk, ChunkRef, Run
 
 __all__ = [
@@ -92,6 +95,27 @@ def _direct_plan(run: Run) -> _Direct | None:
     return _Direct(Path(store.root), f"{path}/" if path else "", dtype, chunks)
 
 
+def _read_regular(path: Path, key: str) -> bytes:
+    """The bytes of a chunk file that is a regular file of plausible size; a FIFO, a
+    device or an oversized file is a :class:`CorruptChunk`. Checked on the open file
+    (opened without blocking), so that a FIFO swapped in after the run was opened cannot
+    hang the reader; links out of the run were refused when it was opened."""
+    fd = os.open(path, os.O_RDONLY | os.O_NONBLOCK)
+    try:
+        st = os.fstat(fd)
+        if not stat.S_ISREG(st.st_mode):
+            raise CorruptChunk(f"{key}: not a regular file")
+        cap = max_chunk_bytes() + (1 << 20)
+        if st.st_size > cap:
+            raise CorruptChunk(f"{key}: {st.st_size} bytes; expected at most {cap}")
+        with os.fdopen(fd, "rb", closefd=True) as f:
+            fd = -1
+            return f.read(cap + 1)
+    finally:
+        if fd >= 0:
+            os.close(fd)
+
+
 def _first_line(exc: BaseException) -> str:
     lines = str(exc).strip().splitlines()
     return lines[0] if lines else type(exc).__name__
@@ -131,7 +155,7 @@ class ChunkReader:
         k = ref.start // d.chunk_shape[1]
         key = f"{d.prefix}c/{ref.replica}/{k}/{self._tail}"
         try:
-            raw = (d.root / key).read_bytes()
+            raw = _read_regular(d.root / key, key)
         except FileNotFoundError:
             raise MissingChunk(f"{key}: not in the store") from None
         if len(raw) < 4:

@@ -16,10 +16,12 @@ from __future__ import annotations
 
 import math
 import os
+import stat
 from pathlib import Path
 
 __all__ = [
     "extent_problem",
+    "local_problem",
     "max_chunk_bytes",
     "max_ratio",
     "needs_listing",
@@ -104,3 +106,56 @@ def extent_problem(
 def needs_listing(declared: int) -> bool:
     """True when a declared size is large enough to be checked against the store."""
     return declared > _SMALL
+
+
+def _kind(mode: int) -> str:
+    if stat.S_ISFIFO(mode):
+        return "a FIFO"
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "a device"
+    if stat.S_ISSOCK(mode):
+        return "a socket"
+    return "not a regular file"
+
+
+def local_problem(root: Path) -> str | None:
+    """The first file below the run directory ``root`` that massarc will not read, with
+    why: a symbolic link leading out of the run, anything but a regular file or a
+    directory (a FIFO would hang a reader, a device never ends), or a file larger than any
+    chunk can be (a sparse file of 5 GB, say). None when every file is plain."""
+    top = Path(os.path.realpath(root))
+    cap = max_chunk_bytes() + (1 << 20)
+    todo = [Path(root)]
+    while todo:
+        here = todo.pop()
+        try:
+            entries = sorted(os.scandir(here), key=lambda e: e.name)
+        except OSError:
+            continue
+        for entry in entries:
+            rel = Path(entry.path).relative_to(root).as_posix()
+            try:
+                if entry.is_symlink():
+                    target = Path(os.path.realpath(entry.path))
+                    if top != target and top not in target.parents:
+                        return (
+                            f"{rel}: a symbolic link to {str(target)[:200]}, outside the run; "
+                            "expected a file of the run"
+                        )
+                    st = os.stat(entry.path)
+                else:
+                    st = entry.stat(follow_symlinks=False)
+            except OSError as exc:
+                return f"{rel}: cannot be examined ({exc.strerror})"
+            if stat.S_ISDIR(st.st_mode):
+                if not entry.is_symlink():
+                    todo.append(Path(entry.path))
+                continue
+            if not stat.S_ISREG(st.st_mode):
+                return f"{rel}: {_kind(st.st_mode)}, not a regular file"
+            if st.st_size > cap:
+                return (
+                    f"{rel}: {st.st_size} bytes; expected at most {cap} for a file of a run "
+                    "(MASSARC_MAX_CHUNK_BYTES)"
+                )
+    return None

@@ -40,7 +40,7 @@ from massarc.schema.spec import (
 
 from .allow import run_problem
 from .errors import ArchiveError, NotARunError
-from .limits import extent_problem, max_ratio, needs_listing, stored_size
+from .limits import extent_problem, local_problem, max_ratio, needs_listing, stored_size
 from .store import Location, local_path, location_name, open_store
 
 __all__ = ["Chunk", "ChunkRef", "Run", "open_run", "open_runs"]
@@ -381,7 +381,11 @@ def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
         return Run(group, name, None, problems=list(exc.problems))
     run = Run(group, name, header)
     path = group.store_path.path
-    refused = run_problem(group.store_path.store, f"{path}/" if path else "")
+    store = group.store_path.store
+    refused = None
+    if isinstance(store, LocalStore):  # before anything below the run is opened
+        refused = local_problem(Path(store.root) / path if path else Path(store.root))
+    refused = refused or run_problem(store, f"{path}/" if path else "")
     if refused is not None:  # nothing of the run is decoded: its arrays read as absent
         run.unreadable[MASS] = refused
         run._members.update({MASS: None, TIME: None})
@@ -392,6 +396,10 @@ def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
 
 def _open_group(location: Location) -> zarr.Group:
     name = location_name(location)
+    path = local_path(location)
+    node = path / "zarr.json" if path is not None and path.is_dir() else None
+    if node is not None and (node.is_symlink() or (node.exists() and not node.is_file())):
+        raise ArchiveError(f"{node}: expected a regular file; got a link or a special file")
     store = open_store(location, "r")
     try:
         return zarr.open_group(store, mode="r", zarr_format=3, use_consolidated=False)

@@ -27,7 +27,17 @@ _LAUNCH = (
 def capped_massarc(*args: str, timeout: float = 60.0) -> subprocess.CompletedProcess[str]:
     """``massarc ARGS`` under the memory cap; raises ``subprocess.TimeoutExpired`` when it
     does not finish in ``timeout`` seconds (the child is killed)."""
-    env = {**os.environ, "OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
+    # What the cap measures is what the input makes massarc allocate, not address space
+    # reserved ahead: the NumPy kernels (MASSARC_PURE; compiling numba's takes LLVM's share)
+    # and two malloc arenas (glibc reserves 64 MiB of address space per thread arena, and
+    # zarr decodes in a pool of threads; common practice under RLIMIT_AS)
+    env = {
+        **os.environ,
+        "OMP_NUM_THREADS": "1",
+        "OPENBLAS_NUM_THREADS": "1",
+        "MASSARC_PURE": "1",
+        "MALLOC_ARENA_MAX": "2",
+    }
     return subprocess.run(
         [sys.executable, "-c", _LAUNCH, str(MEMORY_CAP), MASSARC, *args],
         capture_output=True,
