@@ -1,7 +1,7 @@
 """Issue 11, defect 4: decompression bombs. A small chunk whose compressed bytes claim a
 huge decoded size (zstd and Blosc headers; a gzip stream of zeros) is refused before the
 memory is allocated, whatever array it belongs to (``time`` included): the chunk is
-reported corrupt, by key, and the audit finishes under a 1 GiB address-space cap.
+reported corrupt, by key, and the audit finishes under an address-space cap (tests/_hostile.py).
 
 The honest side: runs stored with zstd, gzip or Blosc without a checksum read back equal
 to what zarr-python itself decodes (the bound does not refuse real chunks)."""

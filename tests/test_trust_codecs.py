@@ -1,7 +1,7 @@
 """Issue 11, defect 4 and "refuse before decoding": the Zarr metadata of every array of a
 run is checked against an allow-list of data types and codecs, and against the chunk-size
 cap, before any chunk is decoded. The refusal names the array and the codec. Each hostile
-case runs in a child process under a 1 GiB address-space cap and a timeout."""
+case runs in a child process under an address-space cap (tests/_hostile.py) and a timeout."""
 
 from __future__ import annotations
 

@@ -1,7 +1,7 @@
 """Issue 11, defect 5: a chunk must be a regular file of plausible size, inside the run.
 A link to /dev/zero or out of the run, a sparse 5 GB file and a FIFO are refused before
 anything is read, naming the file; ``check``, ``info`` and ``convert`` finish (no hang)
-under a 1 GiB address-space cap."""
+under an address-space cap (tests/_hostile.py)."""
 
 from __future__ import annotations
 

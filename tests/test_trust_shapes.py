@@ -2,7 +2,7 @@
 10^15 snapshots, or 10^9 replicas, is refused before any chunk list is built: a run cannot
 declare more snapshots than its chunks could contain at the maximum compression ratio.
 ``check`` fails it (schema), ``info`` names the problem without printing the count; both
-finish quickly under a 1 GiB address-space cap."""
+finish quickly under an address-space cap (tests/_hostile.py)."""
 
 from __future__ import annotations
 
