@@ -18,6 +18,11 @@ instead of turning every chunk into a corrupt one.
 
 from __future__ import annotations
 
+import itertools
+import math
+import os
+import stat
+from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -27,9 +32,20 @@ from numcodecs import blosc
 from zarr.codecs import BloscCodec, BytesCodec, Crc32cCodec
 from zarr.storage import LocalStore
 
+from massarc.schema.spec import TIME
+
+from .errors import ChunkError
+from .limits import max_chunk_bytes
 from .reader import Chunk, ChunkRef, Run
 
-__all__ = ["ChunkReader", "CorruptChunk", "MissingChunk"]
+__all__ = [
+    "ChunkReader",
+    "CorruptChunk",
+    "MissingChunk",
+    "checked_chunks",
+    "missing_chunks",
+    "missing_time_chunks",
+]
 
 
 class MissingChunk(FileNotFoundError):
@@ -79,6 +95,27 @@ def _direct_plan(run: Run) -> _Direct | None:
     return _Direct(Path(store.root), f"{path}/" if path else "", dtype, chunks)
 
 
+def _read_regular(path: Path, key: str) -> bytes:
+    """The bytes of a chunk file that is a regular file of plausible size; a FIFO, a
+    device or an oversized file is a :class:`CorruptChunk`. Checked on the open file
+    (opened without blocking), so that a FIFO swapped in after the run was opened cannot
+    hang the reader; links out of the run were refused when it was opened."""
+    fd = os.open(path, os.O_RDONLY | os.O_NONBLOCK)
+    try:
+        st = os.fstat(fd)
+        if not stat.S_ISREG(st.st_mode):
+            raise CorruptChunk(f"{key}: not a regular file")
+        cap = max_chunk_bytes() + (1 << 20)
+        if st.st_size > cap:
+            raise CorruptChunk(f"{key}: {st.st_size} bytes; expected at most {cap}")
+        with os.fdopen(fd, "rb", closefd=True) as f:
+            fd = -1
+            return f.read(cap + 1)
+    finally:
+        if fd >= 0:
+            os.close(fd)
+
+
 def _first_line(exc: BaseException) -> str:
     lines = str(exc).strip().splitlines()
     return lines[0] if lines else type(exc).__name__
@@ -118,7 +155,7 @@ class ChunkReader:
         k = ref.start // d.chunk_shape[1]
         key = f"{d.prefix}c/{ref.replica}/{k}/{self._tail}"
         try:
-            raw = (d.root / key).read_bytes()
+            raw = _read_regular(d.root / key, key)
         except FileNotFoundError:
             raise MissingChunk(f"{key}: not in the store") from None
         if len(raw) < 4:
@@ -140,3 +177,87 @@ class ChunkReader:
         n = ref.stop - ref.start
         mass = out[:n] if n < rows else out
         return Chunk(ref.replica, ref.start, ref.stop, mass, ref.key)
+
+
+def _stored_keys(run: Run) -> tuple[set[str], str] | None:
+    """Every key stored under the ``mass`` array, listed once; None if the store cannot list."""
+    from zarr.core.sync import collect_aiterator
+
+    try:
+        arr = run.mass
+        path = arr.store_path.path
+        prefix = f"{path}/" if path else ""
+        keys = collect_aiterator(arr.store_path.store.list_prefix(prefix))
+        return set(keys), prefix
+    except Exception:  # a store that cannot list: missing chunks then read as the sentinel
+        return None
+
+
+def missing_chunks(run: Run, refs: list[ChunkRef]) -> dict[int, tuple[str, str]]:
+    """Chunks with a storage object absent from the store, by position in ``refs``: the
+    key of the first absent object (with chunks that split the lattice, not necessarily
+    the ref's own key, which names site 0) and a message."""
+    listed = _stored_keys(run)
+    if listed is None or not refs:
+        return {}
+    stored, prefix = listed
+    arr = run.mass
+    grid = tuple(arr.shards or arr.chunks)
+    lattice = [range(math.ceil(n / g)) for n, g in zip(arr.shape[2:], grid[2:], strict=True)]
+    encode = arr.metadata.encode_chunk_key
+    out: dict[int, tuple[str, str]] = {}
+    for i, ref in enumerate(refs):
+        times = range(ref.start // grid[1], (ref.stop - 1) // grid[1] + 1)
+        for t, rest in itertools.product(times, itertools.product(*lattice)):
+            key = prefix + encode((ref.replica // grid[0], t, *rest))
+            if key not in stored:
+                out[i] = (key, f"{key}: not in the store (it would read as the fill value)")
+                break
+    return out
+
+
+def missing_time_chunks(run: Run) -> list[tuple[str, int, int]]:
+    """``(key, start, stop)`` of every chunk of ``time`` over the committed snapshots whose
+    storage object is absent (zarr reads it as NaN, the fill value); empty when the store
+    cannot be listed or the run has no readable ``time``."""
+    from zarr.core.sync import collect_aiterator
+
+    arr = run.array(TIME)
+    n = run.n_snapshots
+    if arr is None or arr.ndim != 1 or n == 0:
+        return []
+    try:
+        path = arr.store_path.path
+        prefix = f"{path}/" if path else ""
+        stored = set(collect_aiterator(arr.store_path.store.list_prefix(prefix)))
+    except Exception:  # a store that cannot list
+        return []
+    step = int((arr.shards or arr.chunks)[0])
+    out = []
+    for k, lo in enumerate(range(0, n, step)):
+        key = prefix + arr.metadata.encode_chunk_key((k,))
+        if key not in stored:
+            out.append((key, lo, min(lo + step, n)))
+    return out
+
+
+def checked_chunks(run: Run) -> Iterator[Chunk]:
+    """Every committed chunk of ``run``, decoded, replica-major then time; a chunk that is
+    missing (zarr would read it as the fill value) or corrupt raises :class:`ChunkError`
+    naming it, so that no reader of this function mistakes the sentinel for data."""
+    refs = run.chunk_refs()
+    reader = ChunkReader(run)
+    missing = {} if reader.direct else missing_chunks(run, refs)
+    for i, ref in enumerate(refs):
+        where = f"replica {ref.replica}, snapshots {ref.start}..{ref.stop - 1}"
+        if i in missing:
+            key, why = missing[i]
+            raise ChunkError(f"{run.name}: chunk {key} ({where}) is missing: {why}")
+        try:
+            yield reader.read(ref)
+        except MissingChunk as exc:
+            raise ChunkError(f"{run.name}: chunk {ref.key} ({where}) is missing: {exc}") from None
+        except CorruptChunk as exc:
+            raise ChunkError(
+                f"{run.name}: chunk {ref.key} ({where}) is corrupt: {_first_line(exc)}"
+            ) from None

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = ["ArchiveError", "DataError", "NotARunError"]
+__all__ = ["ArchiveError", "ChunkError", "DataError", "NotARunError"]
 
 
 class ArchiveError(ValueError):
@@ -15,3 +15,8 @@ class NotARunError(ArchiveError, FileNotFoundError):
 
 class DataError(ArchiveError):
     """Data that cannot go into an archive: the message names (replica, snapshot, site)."""
+
+
+class ChunkError(ArchiveError):
+    """A chunk of ``mass`` that is missing or corrupt where its data are needed (an
+    export): the message names the run, the chunk key, the replica and the snapshots."""

@@ -7,6 +7,7 @@ from typing import Any
 import numpy as np
 
 from massarc.schema.models import CMAMModel, CustomModel, ZRPModel
+from massarc.schema.spec import MASS
 
 from .reader import Run
 
@@ -44,9 +45,9 @@ def run_facts(run: Run) -> dict[str, Any]:
     """What ``massarc info`` shows, as a JSON-ready dict."""
     meta = run.meta
     facts: dict[str, Any] = {"path": run.name}
-    if meta is None:
-        facts["problems"] = run.problems
-    else:
+    if meta is None or run.array(MASS) is None:
+        facts["problems"] = run.problems or [run.unreadable.get(MASS, f"no '{MASS}' array")]
+    if meta is not None:
         lat = meta.lattice
         facts.update(
             model=model_line(meta.model),
@@ -77,7 +78,7 @@ def run_facts(run: Run) -> dict[str, Any]:
         )
     if run.events is not None:
         facts["events"] = int(np.prod(run.events["time"].shape))
-    stored = run.summaries
+    stored = None if "problems" in facts else run.summaries  # its arrays are unreadable
     if stored is not None:
         prov = stored.provenance
         facts["summaries"] = {

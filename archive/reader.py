@@ -26,6 +26,7 @@ from typing import Any
 
 import numpy as np
 import zarr
+from zarr.storage import LocalStore
 
 from massarc.schema import ArchiveHeader, MetadataError, RunMeta, WriteState, parse_header
 from massarc.schema.spec import (
@@ -37,7 +38,9 @@ from massarc.schema.spec import (
     TIME,
 )
 
+from .allow import run_problem
 from .errors import ArchiveError, NotARunError
+from .limits import extent_problem, local_problem, max_ratio, needs_listing, stored_size
 from .store import Location, local_path, location_name, open_store
 
 __all__ = ["Chunk", "ChunkRef", "Run", "open_run", "open_runs"]
@@ -76,13 +79,61 @@ class Run:
     name: str
     header: ArchiveHeader | None
     problems: list[str] = field(default_factory=list)
+    #: Members whose Zarr metadata cannot be read, with the reason: ``{"mass": "..."}``.
+    unreadable: dict[str, str] = field(default_factory=dict)
     _members: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     def _member(self, key: str) -> Any:
-        """``group.get(key)``, looked up once: a Zarr group lookup costs a store read."""
+        """``group.get(key)``, looked up once: a Zarr group lookup costs a store read.
+        A member whose metadata zarr cannot parse reads as absent, and the reason goes
+        to :attr:`unreadable` (the ``schema`` check reports it)."""
         if key not in self._members:
-            self._members[key] = self.group.get(key)
+            try:
+                value = self.group.get(key)
+            except Exception as exc:  # zarr raises many kinds for metadata it cannot parse
+                self.unreadable[key] = f"{key}/zarr.json: {_first_line(exc)}"
+                value = None
+            if key == MASS and isinstance(value, zarr.Array):
+                problem = self._extent_problem(value)
+                if problem is not None:
+                    self.unreadable[key] = f"{MASS}: {problem}"
+                    value = None
+            self._members[key] = value
         return self._members[key]
+
+    def _extent_problem(self, arr: zarr.Array) -> str | None:
+        """Why the committed extent of ``arr`` cannot be real (see
+        :func:`~massarc.archive.limits.extent_problem`); checked before any chunk list is
+        built, so that a few-KB archive cannot claim 10^15 snapshots."""
+        shape = tuple(int(n) for n in arr.shape)
+        if len(shape) < 3:
+            return None  # the schema check reports the dimensions
+        reps, snaps = shape[0], shape[1]
+        if self.header is not None:
+            st = self.header.state
+            reps, snaps = min(reps, st.replicas), min(snaps, st.snapshots)
+        lattice = shape[2:]
+        itemsize = np.dtype(arr.dtype).itemsize
+        declared = reps * snaps * math.prod(lattice) * itemsize
+        if not needs_listing(declared):
+            return None
+        store = arr.store_path.store
+        if isinstance(store, LocalStore):
+            path = arr.store_path.path
+            root = Path(store.root) / path if path else Path(store.root)
+            stored = stored_size(root, declared // max_ratio() + 1)
+        else:
+            try:
+                stored = int(arr.nbytes_stored())
+            except Exception:  # a store that cannot tell: judged as empty
+                stored = 0
+        return extent_problem(reps, snaps, lattice, itemsize, stored)
+
+    def array(self, key: str) -> zarr.Array | None:
+        """The member array ``key`` (``"mass"``, ``"time"``...), or None when it is absent,
+        not an array, or its metadata cannot be read (see :attr:`unreadable`)."""
+        arr = self._member(key)
+        return arr if isinstance(arr, zarr.Array) else None
 
     # -- what the run is ---------------------------------------------------------------
 
@@ -107,7 +158,8 @@ class Run:
         """The raw Zarr array (its shape may exceed the committed extent after a crash)."""
         arr = self._member(MASS)
         if not isinstance(arr, zarr.Array):
-            raise ArchiveError(f"{self.name}: no '{MASS}' array")
+            why = self.unreadable.get(MASS, f"no '{MASS}' array")
+            raise ArchiveError(f"{self.name}: {why}")
         return arr
 
     @property
@@ -149,10 +201,35 @@ class Run:
             arr = self._member(TIME)
             times = np.empty(0)
             if isinstance(arr, zarr.Array):
-                times = np.asarray(arr[: self.n_snapshots], dtype=np.float64)
+                times = self._read_times(arr)
+            elif self.n_snapshots:
+                why = self.unreadable.get(TIME, f"no '{TIME}' array")
+                raise ArchiveError(f"{self.name}: {why}")
             times.setflags(write=False)
             self._members["times"] = times
         return self._members["times"]
+
+    def _read_times(self, arr: zarr.Array) -> np.ndarray:
+        """``time[:T]``, chunk by chunk: one that does not decode raises
+        :class:`ArchiveError` naming it (a missing one reads as NaN, the fill value, which
+        ``time-order`` reports as not finite)."""
+        n = self.n_snapshots
+        if arr.ndim != 1 or arr.shape[0] < n:
+            raise ArchiveError(
+                f"{self.name}: {TIME}: expected shape [{n}] or longer; got {list(arr.shape)}"
+            )
+        step = int(arr.chunks[0])
+        out = np.empty(n, dtype=np.float64)
+        for k, lo in enumerate(range(0, n, step)):
+            hi = min(lo + step, n)
+            key = f"{TIME}/{arr.metadata.encode_chunk_key((k,))}"
+            try:
+                out[lo:hi] = np.asarray(arr[lo:hi], dtype=np.float64)
+            except (ValueError, RuntimeError) as exc:  # zarr's codecs: checksum, decoding
+                raise ArchiveError(
+                    f"{self.name}: {key} (snapshots {lo}..{hi - 1}) is corrupt: {_first_line(exc)}"
+                ) from None
+        return out
 
     @property
     def nbytes(self) -> int:
@@ -206,9 +283,13 @@ class Run:
         return Chunk(ref.replica, ref.start, ref.stop, data, ref.key)
 
     def chunks(self) -> Iterator[Chunk]:
-        """Decoded chunks one at a time, replica-major then time (memory: one chunk)."""
-        for ref in self.chunk_refs():
-            yield self.read_chunk(ref)
+        """Decoded chunks one at a time, replica-major then time (memory: one chunk).
+
+        A missing or corrupt chunk raises :class:`~massarc.archive.errors.ChunkError`
+        naming it: zarr alone would read a missing chunk as the fill value."""
+        from ._chunk_read import checked_chunks  # it imports this module
+
+        yield from checked_chunks(self)
 
     def read(self, replica: int, start: int = 0, stop: int | None = None) -> np.ndarray:
         """Masses of one replica for snapshots [start, stop), as ``(time, *lattice)``."""
@@ -231,10 +312,17 @@ def _is_run(group: zarr.Group) -> bool:
     return isinstance(raw, dict) and raw.get("format") == RUN_KIND
 
 
-def _run_dirs(root: Path) -> list[Path]:
-    """Directories below ``root`` whose ``zarr.json`` is a massarc run, in name order.
-    The walk does not descend into Zarr nodes (a run's arrays, or runs inside runs)."""
-    found = []
+def _first_line(exc: BaseException) -> str:
+    lines = str(exc).strip().splitlines()
+    return f"{type(exc).__name__}: {lines[0][:200]}" if lines else type(exc).__name__
+
+
+def _run_dirs(root: Path) -> list[tuple[Path, str | None]]:
+    """Directories below ``root`` whose ``zarr.json`` is a massarc run, in name order, each
+    with None; or whose ``zarr.json`` cannot be read as JSON, each with the reason (a
+    collection lists the runs it cannot read too). The walk does not descend into Zarr
+    nodes (a run's arrays, or runs inside runs)."""
+    found: list[tuple[Path, str | None]] = []
     for here, dirs, _files in os.walk(root):
         dirs.sort()
         node = Path(here) / "zarr.json"
@@ -242,14 +330,41 @@ def _run_dirs(root: Path) -> list[Path]:
             dirs.clear()
             try:
                 doc = json.loads(node.read_text(encoding="utf-8"))
-            except (OSError, ValueError):
+            except (OSError, ValueError) as exc:
+                found.append((Path(here), f"{node}: cannot be read as JSON ({_first_line(exc)})"))
+                continue
+            if not isinstance(doc, dict):
+                found.append(
+                    (Path(here), f"{node}: expected a JSON object; got {type(doc).__name__}")
+                )
                 continue
             attrs = doc.get("attributes") or {}
             raw = attrs.get(ATTRIBUTE_KEY) if isinstance(attrs, dict) else None
             is_group = doc.get("node_type") == "group"
             if is_group and isinstance(raw, dict) and raw.get("format") == RUN_KIND:
-                found.append(Path(here))
+                found.append((Path(here), None))
     return found
+
+
+def _broken(name: str, problem: str) -> Run:
+    """A run that cannot be opened, as a run without header or arrays: ``problems`` says
+    why, so that a collection still lists it and ``schema`` reports it."""
+    empty = zarr.open_group(zarr.storage.MemoryStore(), mode="w", zarr_format=3)
+    return Run(empty, name, None, problems=[problem])
+
+
+def _from_dir(path: Path, problem: str | None, lenient: bool) -> Run:
+    """The run at ``path`` found by :func:`_run_dirs`; a broken one raises unless lenient."""
+    if problem is None:
+        try:
+            return _from_group(_open_group(path), str(path), lenient)
+        except MetadataError:
+            raise
+        except Exception as exc:  # zarr refuses the group's metadata
+            problem = f"{path}/zarr.json: {_first_line(exc)}"
+    if not lenient:
+        raise ArchiveError(problem)
+    return _broken(str(path), problem)
 
 
 def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
@@ -264,16 +379,34 @@ def _from_group(group: zarr.Group, name: str, lenient: bool) -> Run:
         if not lenient:
             raise
         return Run(group, name, None, problems=list(exc.problems))
-    return Run(group, name, header)
+    run = Run(group, name, header)
+    path = group.store_path.path
+    store = group.store_path.store
+    refused = None
+    if isinstance(store, LocalStore):  # before anything below the run is opened
+        refused = local_problem(Path(store.root) / path if path else Path(store.root))
+    refused = refused or run_problem(store, f"{path}/" if path else "")
+    if refused is not None:  # nothing of the run is decoded: its arrays read as absent
+        run.unreadable[MASS] = refused
+        run._members.update({MASS: None, TIME: None})
+    if not lenient and run.array(MASS) is None and MASS in run.unreadable:
+        raise ArchiveError(f"{name}: {run.unreadable[MASS]}")
+    return run
 
 
 def _open_group(location: Location) -> zarr.Group:
     name = location_name(location)
+    path = local_path(location)
+    node = path / "zarr.json" if path is not None and path.is_dir() else None
+    if node is not None and (node.is_symlink() or (node.exists() and not node.is_file())):
+        raise ArchiveError(f"{node}: expected a regular file; got a link or a special file")
     store = open_store(location, "r")
     try:
         return zarr.open_group(store, mode="r", zarr_format=3, use_consolidated=False)
     except (FileNotFoundError, zarr.errors.GroupNotFoundError, KeyError):
         raise NotARunError(f"{name}: not a Zarr v3 group") from None
+    except Exception as exc:  # e.g. a zarr.json that is not JSON, a file that is not a zip
+        raise ArchiveError(f"{name}: cannot open as a Zarr v3 group ({_first_line(exc)})") from None
 
 
 def open_run(location: Location, *, lenient: bool = False) -> Run:
@@ -292,7 +425,7 @@ def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
     name = location_name(location)
     path = local_path(location)
     if path is not None and path.is_dir() and not (path / "zarr.json").exists():
-        runs = [_from_group(_open_group(d), str(d), lenient) for d in _run_dirs(path)]
+        runs = [_from_dir(d, problem, lenient) for d, problem in _run_dirs(path)]
         if not runs:
             raise NotARunError(f"{name}: directory holds no massarc run")
         return runs
@@ -301,6 +434,10 @@ def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
         return [_from_group(group, name, lenient)]
     raw = group.attrs.get(ATTRIBUTE_KEY)
     is_collection = isinstance(raw, dict) and raw.get("format") == COLLECTION_KIND
+    if path is not None and path.is_dir():  # a local group: children zarr cannot read count
+        found = _run_dirs(path)
+        if found:
+            return [_from_dir(d, problem, lenient) for d, problem in found]
     runs = []
     for key, child in sorted(group.groups()):
         if _is_run(child):

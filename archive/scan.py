@@ -32,8 +32,6 @@ A check may also bring a statistic of its own (``Check.provides``).
 from __future__ import annotations
 
 import inspect
-import itertools
-import math
 import os
 import time
 from abc import ABC, abstractmethod
@@ -44,7 +42,13 @@ from typing import Any, ClassVar, Generic, TypeVar
 
 import numpy as np
 
-from ._chunk_read import ChunkReader, CorruptChunk, MissingChunk
+from ._chunk_read import (
+    ChunkReader,
+    CorruptChunk,
+    MissingChunk,
+    missing_chunks,
+    missing_time_chunks,
+)
 from .progress import Progress
 from .reader import Chunk, ChunkRef, Run
 from .registry import Registry
@@ -58,6 +62,7 @@ __all__ = [
     "available_statistics",
     "default_workers",
     "get_statistic",
+    "missing_time_chunks",
     "register_statistic",
     "scan",
 ]
@@ -74,6 +79,13 @@ class ChunkFault:
     ref: ChunkRef
     kind: str
     message: str
+    #: The storage key at fault when it is not ``ref.key`` (chunks that split the lattice).
+    key: str = ""
+
+    @property
+    def chunk(self) -> str:
+        """The storage key at fault."""
+        return self.key or self.ref.key
 
 
 class Statistic(ABC):
@@ -191,41 +203,6 @@ def default_workers() -> int:
 def _one_line(exc: BaseException) -> str:
     text = str(exc).strip().splitlines()
     return f"{type(exc).__name__}: {text[0]}" if text else type(exc).__name__
-
-
-def _stored_keys(run: Run) -> tuple[set[str], str] | None:
-    """Every key stored under the ``mass`` array, listed once; None if the store cannot list."""
-    from zarr.core.sync import collect_aiterator
-
-    try:
-        arr = run.mass
-        path = arr.store_path.path
-        prefix = f"{path}/" if path else ""
-        keys = collect_aiterator(arr.store_path.store.list_prefix(prefix))
-        return set(keys), prefix
-    except Exception:  # a store that cannot list: missing chunks then read as the sentinel
-        return None
-
-
-def _missing_chunks(run: Run, refs: list[ChunkRef]) -> dict[int, str]:
-    """Chunks with a storage object absent from the store, by position in ``refs``."""
-    listed = _stored_keys(run)
-    if listed is None or not refs:
-        return {}
-    stored, prefix = listed
-    arr = run.mass
-    grid = tuple(arr.shards or arr.chunks)
-    lattice = [range(math.ceil(n / g)) for n, g in zip(arr.shape[2:], grid[2:], strict=True)]
-    encode = arr.metadata.encode_chunk_key
-    out: dict[int, str] = {}
-    for i, ref in enumerate(refs):
-        times = range(ref.start // grid[1], (ref.stop - 1) // grid[1] + 1)
-        for t, rest in itertools.product(times, itertools.product(*lattice)):
-            key = prefix + encode((ref.replica // grid[0], t, *rest))
-            if key not in stored:
-                out[i] = f"{key}: not in the store (it would read as the fill value)"
-                break
-    return out
 
 
 @dataclass
@@ -390,7 +367,7 @@ def scan(
     refs = state.refs
     reader = ChunkReader(run, direct=direct)
     # the direct reader finds absent chunk files as it opens them; zarr would fill them in
-    missing = {} if reader.direct else _missing_chunks(run, refs)
+    missing = {} if reader.direct else missing_chunks(run, refs)
     n_workers = max(1, workers or default_workers())
     limit = max(1, in_flight or 2 * n_workers)
     edges = bool(state.pairing)
@@ -412,7 +389,8 @@ def scan(
                 if i is None:
                     break
                 if i in missing:
-                    fault = ChunkFault(refs[i], "missing", missing[i])
+                    key, why = missing[i]
+                    fault = ChunkFault(refs[i], "missing", why, key)
                     state.resolve(_ChunkOutcome(i, fault=fault))
                     tick()
                     continue

@@ -10,6 +10,7 @@
 from __future__ import annotations
 
 import os
+import zipfile
 from pathlib import Path
 from urllib.parse import unquote, urlparse
 
@@ -65,6 +66,9 @@ def open_store(location: Location, mode: str = "r") -> Store:
             )
         if not path.is_file():
             raise ArchiveError(f"{text}: no such zip file")
+        if not zipfile.is_zipfile(path):
+            raise ArchiveError(f"{text}: expected a zip file; got other content")
+        _guard_zip(path, text)
         return ZipStore(path, mode="r")
     if path is not None:
         if read_only and not path.exists():
@@ -76,6 +80,30 @@ def open_store(location: Location, mode: str = "r") -> Store:
         return FsspecStore.from_url(text, read_only=read_only)
     except Exception as exc:  # fsspec raises many kinds for unknown protocols
         raise ArchiveError(f"{text}: cannot open this URL ({exc})") from None
+
+
+def _guard_zip(path: Path, name: str) -> None:
+    """Refuse a zip whose members could expand beyond the caps when read (the central
+    directory states every member's sizes; zipfile reads a member up to its stated size)."""
+    from .limits import max_chunk_bytes, max_ratio
+
+    cap, ratio = max_chunk_bytes() + (1 << 20), max_ratio()
+    try:
+        with zipfile.ZipFile(path) as z:
+            members = z.infolist()
+    except (zipfile.BadZipFile, OSError) as exc:
+        raise ArchiveError(f"{name}: expected a readable zip file ({exc})") from None
+    for m in members:
+        if m.file_size > cap:
+            raise ArchiveError(
+                f"{name}: member {m.filename[:200]}: {m.file_size} bytes uncompressed; "
+                f"expected at most {cap} (MASSARC_MAX_CHUNK_BYTES)"
+            )
+        if m.file_size > max(m.compress_size, 1) * ratio:
+            raise ArchiveError(
+                f"{name}: member {m.filename[:200]}: expands {m.file_size} times from "
+                f"{m.compress_size} bytes; expected at most {ratio}:1 (MASSARC_MAX_RATIO)"
+            )
 
 
 def open_group(location: Location, mode: str = "r") -> zarr.Group:

@@ -14,7 +14,13 @@ from typing import TYPE_CHECKING, Any
 if TYPE_CHECKING:
     from .errors import MetadataError, validation_problems
     from .header import ArchiveHeader, NewerFormatWarning, WriteState, parse_header
-    from .load import apply_overrides, load_metadata, parse_metadata, read_metadata_file
+    from .load import (
+        apply_overrides,
+        load_json,
+        load_metadata,
+        parse_metadata,
+        read_metadata_file,
+    )
     from .models import (
         FAMILIES,
         CMAMModel,
@@ -42,6 +48,7 @@ _HOME = {
     "WriteState": "header",
     "parse_header": "header",
     "apply_overrides": "load",
+    "load_json": "load",
     "load_metadata": "load",
     "parse_metadata": "load",
     "read_metadata_file": "load",
@@ -78,6 +85,7 @@ __all__ = [
     "ZRPModel",
     "apply_overrides",
     "json_schema",
+    "load_json",
     "load_metadata",
     "mass_dimensions",
     "parse_header",

@@ -20,7 +20,53 @@ from pydantic import ValidationError
 from .errors import MetadataError, validation_problems
 from .models import RunMeta
 
-__all__ = ["apply_overrides", "load_metadata", "parse_metadata", "read_metadata_file"]
+__all__ = [
+    "MAX_DEPTH",
+    "apply_overrides",
+    "load_json",
+    "load_metadata",
+    "parse_metadata",
+    "read_metadata_file",
+]
+
+#: Deepest nesting of tables and lists accepted in metadata (the models use 4 levels;
+#: ``extra`` and ``model.parameters`` are free, but nothing real nests 64 deep).
+MAX_DEPTH = 64
+
+
+def _depth_problem(data: Any) -> str | None:
+    """A message when ``data`` nests tables or lists deeper than :data:`MAX_DEPTH`."""
+    todo = [(data, 1)]
+    while todo:
+        node, depth = todo.pop()
+        if isinstance(node, dict | list):
+            if depth > MAX_DEPTH:
+                return f"expected tables and lists nested at most {MAX_DEPTH} deep; got deeper"
+            todo.extend((v, depth + 1) for v in (node.values() if isinstance(node, dict) else node))
+    return None
+
+
+def load_json(text: str | bytes) -> Any:
+    """``json.loads`` that refuses absurd nesting with a ``ValueError`` (one line), instead
+    of a ``RecursionError`` from the parser or from whatever walks the result later.
+
+    >>> load_json('{"a": [1, 2]}')
+    {'a': [1, 2]}
+    >>> load_json("[" * 100 + "]" * 100)
+    Traceback (most recent call last):
+    ...
+    ValueError: expected tables and lists nested at most 64 deep; got deeper
+    """
+    try:
+        data = json.loads(text)
+    except RecursionError:
+        raise ValueError(
+            f"expected tables and lists nested at most {MAX_DEPTH} deep; got deeper"
+        ) from None
+    problem = _depth_problem(data)
+    if problem is not None:
+        raise ValueError(problem)
+    return data
 
 
 def read_metadata_file(path: str | Path) -> dict[str, Any]:
@@ -35,14 +81,21 @@ def read_metadata_file(path: str | Path) -> dict[str, Any]:
         raise MetadataError([f"cannot read metadata file ({exc.strerror})"], str(p)) from None
     if p.suffix.lower() == ".json" or (p.suffix.lower() != ".toml" and text.lstrip()[:1] == "{"):
         try:
-            data = json.loads(text)
+            data = load_json(text)
         except json.JSONDecodeError as exc:
             raise MetadataError([f"line {exc.lineno}: invalid JSON ({exc.msg})"], str(p)) from None
+        except ValueError as exc:
+            raise MetadataError([str(exc)], str(p)) from None
     else:
         try:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as exc:
             raise MetadataError([f"invalid TOML ({exc})"], str(p)) from None
+        except RecursionError:
+            data = [[]] * (MAX_DEPTH + 1)  # reported as too deep just below
+        problem = _depth_problem(data)
+        if problem is not None:
+            raise MetadataError([problem], str(p))
     if not isinstance(data, dict):
         raise MetadataError(
             [f"expected a table at the top level; got {type(data).__name__}"], str(p)

@@ -119,6 +119,9 @@ class CsvSource(Source):
 
     unit = "bytes"
     lead: int = 1
+    #: Errors in an integer column name the column (long layout: site, y, x, mass) rather
+    #: than the site of a mass (wide layout).
+    named_columns: bool = False
 
     def __init__(self, path: Path) -> None:
         self.path = path
@@ -135,7 +138,13 @@ class CsvSource(Source):
         column); :attr:`bytes_done` is the progress."""
         names = ("replica", "time") if self.lead == 2 else ("time",)
         parser = LineParser(
-            self.name, "", lead=self.lead, comma=True, lead_names=names, replicas=False
+            self.name,
+            "",
+            lead=self.lead,
+            comma=True,
+            lead_names=names,
+            replicas=False,
+            columns=tuple(self.head.columns[self.lead :]) if self.named_columns else (),
         )
         with open(self.path, "rb") as f:
             f.seek(self.head.offset)

@@ -17,7 +17,6 @@ or more blank lines. Replicas come in order.
 
 from __future__ import annotations
 
-import json
 import os
 import re
 import select
@@ -27,7 +26,7 @@ from typing import Any, BinaryIO
 
 import numpy as np
 
-from massarc.schema import MetadataError
+from massarc.schema import MetadataError, load_json
 
 from ..errors import DataError
 from ._scan import DATA, ERR_EMPTY, ERR_LEAD, ERR_LONG, scan_lines
@@ -40,12 +39,32 @@ __all__ = [
     "magic_of",
     "meta_line",
     "read_preamble",
+    "shown",
 ]
 
 META_PREFIX = "# massarc-meta:"
 _REPLICA = re.compile(rb"^\s*#\s*replica\s+(\S+)\s*$")
 _MAGIC = re.compile(rb"^#\s*(massarc-[a-z]+)(?:\s+(\S+))?\s*$")
 BATCH_BYTES = 1 << 20
+
+
+#: Longest token quoted whole in a message; a longer one is cut and its length given.
+SHOWN_CHARS = 40
+#: The UTF-8 encoding of U+FEFF, the byte-order mark some editors put first.
+BOM = b"\xef\xbb\xbf"
+
+
+def shown(token: str) -> str:
+    """``token`` quoted for a message, cut to :data:`SHOWN_CHARS` characters.
+
+    >>> shown("12x")
+    "'12x'"
+    >>> shown("9" * 100)
+    "'9999999999...' (100 characters)"
+    """
+    if len(token) <= SHOWN_CHARS:
+        return repr(token)
+    return f"{token[:10]!r}"[:-1] + f"...' ({len(token)} characters)"
 
 
 def magic_of(head: bytes) -> str | None:
@@ -153,7 +172,7 @@ def meta_line(text: bytes, name: str, line: int) -> dict[str, Any] | None:
     if not decoded.startswith(META_PREFIX):
         return None
     try:
-        data = json.loads(decoded[len(META_PREFIX) :])
+        data = load_json(decoded[len(META_PREFIX) :])
     except ValueError as exc:
         raise MetadataError(
             [f"expected JSON after '{META_PREFIX}'; got invalid JSON ({exc})"],
@@ -198,6 +217,7 @@ class LineParser:
         value_name: str = "mass",
         site_of: bool = True,
         replicas: bool = True,
+        columns: tuple[str, ...] = (),
     ) -> None:
         self.name = name
         self.magic = magic
@@ -207,6 +227,7 @@ class LineParser:
         self.value_name = value_name
         self.site_of = site_of
         self.replicas = replicas
+        self.columns = columns
         self.meta: dict[str, Any] | None = None
         self.replica = 0
         self.rows_in_replica = 0
@@ -226,7 +247,7 @@ class LineParser:
             except ValueError:
                 raise DataError(
                     f"{self._where(line)}expected '# replica N' with an integer N; "
-                    f"got {text.decode(errors='replace')!r}"
+                    f"got {shown(text.decode(errors='replace'))}"
                 ) from None
             return
         meta = meta_line(text, self.name, line)
@@ -257,6 +278,11 @@ class LineParser:
 
     def parse(self, buf: bytes, first_line: int) -> list[Rows]:
         """Rows of the complete lines in ``buf`` (which starts at line ``first_line``)."""
+        if first_line == 1 and buf.startswith(BOM):
+            raise DataError(
+                f"{self._where(1)}starts with a byte-order mark (U+FEFF); expected text "
+                "without one (save the file as UTF-8 without BOM)"
+            )
         sc = scan_lines(buf, comma=self.comma, lead=self.lead)
         out: list[Rows] = []
         kinds = sc.kind[: sc.n]
@@ -291,7 +317,7 @@ class LineParser:
                         tok = buf[s:e].decode(errors="replace")
                         raise DataError(
                             f"{self._where(first_line + a + row)}expected a number for the "
-                            f"{self.lead_names[k]}; got {tok!r}"
+                            f"{self.lead_names[k]}; got {shown(tok)}"
                         ) from None
         counts = sc.count[a:b].copy()
         offsets = sc.vstart[a:b].copy()
@@ -324,11 +350,16 @@ class LineParser:
             raise DataError(f"{self._where(line)}expected the {want} first; got too few fields")
         if sc.err_code == ERR_EMPTY:
             raise DataError(f"{self._where(line)}field {k + 1} is empty; expected a value")
+        too_long = " (too many digits)" if sc.err_code == ERR_LONG else ""
+        if k - self.lead < len(self.columns):  # a named column (CSV): name it
+            raise DataError(
+                f"{self._where(line)}column {self.columns[k - self.lead]}: expected a "
+                f"non-negative integer{too_long}; got {shown(tok)}"
+            )
         self._start_run(line)
         site = f", site {k - self.lead}" if self.site_of else ""
         what = f"replica {self.replica}, snapshot {self.rows_in_replica}{site}: "
-        too_long = " (too many digits)" if sc.err_code == ERR_LONG else ""
         raise DataError(
             f"{self._where(line)}{what}expected a non-negative integer {self.value_name}"
-            f"{too_long}; got {tok!r}"
+            f"{too_long}; got {shown(tok)}"
         )

@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-from massarc.schema import MetadataError, RunMeta, apply_overrides
+from massarc.schema import MetadataError, RunMeta, apply_overrides, load_json
 
 from ..errors import DataError
 
@@ -56,7 +56,7 @@ def metadata_from_json(raw: Any, where: str) -> dict[str, Any]:
     """The metadata dict stored as JSON text in ``raw`` (a string, bytes, an attribute or a
     0-d string array); ``where`` names it in the :class:`MetadataError`."""
     try:
-        data = json.loads(attr_value(raw))
+        data = load_json(attr_value(raw))
     except (TypeError, ValueError) as exc:
         raise MetadataError([f"expected JSON metadata; got invalid JSON ({exc})"], where) from None
     if not isinstance(data, dict):

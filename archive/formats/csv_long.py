@@ -74,6 +74,8 @@ def _layout(columns: list[str], name: str, line: int) -> tuple[int, int]:
 
 
 class CsvLongSource(CsvSource):
+    named_columns = True
+
     def __init__(self, path: Path) -> None:
         super().__init__(path)
         self.lead, self.site_columns = _layout(self.head.columns, self.name, self.head.line)

@@ -83,7 +83,7 @@ def _is_run_dir(path: Path) -> bool:
         return False
     try:
         attrs = json.loads(meta.read_text(encoding="utf-8")).get("attributes", {})
-    except (OSError, ValueError):
+    except (OSError, ValueError, AttributeError, RecursionError):  # not a Zarr node we read
         return False
     return isinstance(attrs, dict) and ATTRIBUTE_KEY in attrs
 

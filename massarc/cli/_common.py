@@ -27,6 +27,8 @@ __all__ = [
 ]
 
 EXIT_BAD_INPUT = 2
+#: Longest error message printed whole.
+_LONGEST = 2000
 
 _F = TypeVar("_F", bound=Callable[..., Any])
 
@@ -34,6 +36,8 @@ _F = TypeVar("_F", bound=Callable[..., Any])
 def die(command: str, message: str) -> NoReturn:
     """Print ``massarc COMMAND: error: MESSAGE`` (one line) to stderr and exit with status 2."""
     one_line = " ".join(str(message).split())
+    if len(one_line) > _LONGEST:  # a safety net: messages quote inputs, cut at the source
+        one_line = f"{one_line[:_LONGEST]}... ({len(one_line)} characters)"
     click.echo(f"massarc {command}: error: {one_line}", err=True)
     sys.exit(EXIT_BAD_INPUT)
 

@@ -7,8 +7,8 @@ from typing import Any
 
 import click
 
-from massarc.archive import open_runs
 from massarc.archive.facts import run_facts
+from massarc.validators import open_for_audit
 
 from ._common import bad_input, rendering_option
 
@@ -28,7 +28,7 @@ def _size_text(n: float) -> str:
 
 def _text_lines(f: dict[str, Any]) -> list[str]:
     if "problems" in f:
-        return [f"{f['path']}", "  metadata invalid: " + "; ".join(f["problems"])]
+        return [f"{f['path']}", "  unreadable: " + "; ".join(f["problems"])]
     sites = " x ".join(str(s) for s in f["lattice"])
     bounds = ", ".join(f["boundary"])
     out = [
@@ -77,7 +77,9 @@ def command(locations: tuple[str, ...], rendering: str) -> None:
     facts = []
     with bad_input("info"):
         for loc in locations:
-            facts.extend(run_facts(run) for run in open_runs(loc, lenient=True))
+            # leniently, as for an audit: invalid metadata are shown; an unknown major
+            # format version is refused (FORMAT.md section 8)
+            facts.extend(run_facts(run) for run in open_for_audit(loc))
     if rendering == "json":
         click.echo(json.dumps({"runs": facts}, indent=2))
         return

@@ -6,6 +6,7 @@ Missing chunks (absent from the store, which zarr would silently fill in) and co
 by key, replica and snapshot range; the other checks go on without them. Values equal to
 the fill value of ``mass`` (the largest value of its dtype, which the writer never stores)
 inside a present chunk are also reported here, since they mean data that were never written.
+A chunk of ``time`` absent from the store (zarr would read NaN) fails too.
 """
 
 from __future__ import annotations
@@ -13,6 +14,8 @@ from __future__ import annotations
 from typing import Any, ClassVar
 
 import numpy as np
+
+from massarc.archive.scan import missing_time_chunks
 
 from ..engine.registry import Check, CheckContext
 from ..engine.result import CheckResult
@@ -22,6 +25,15 @@ __all__ = ["IntegrityCheck"]
 
 #: Chunks listed one by one in ``values["chunks"]``.
 _LISTED = 50
+
+
+def _time_text(lost: list[tuple[str, int, int]]) -> str:
+    key, lo, hi = lost[0]
+    more = f"; {len(lost) - 1} more" if len(lost) > 1 else ""
+    return (
+        f"time chunk {key} (snapshots {lo}..{hi - 1}) is missing: not in the store (it "
+        f"would read as NaN, the fill value){more}"
+    )
 
 
 class IntegrityCheck(Check):
@@ -41,10 +53,13 @@ class IntegrityCheck(Check):
             "corrupt": sum(f.kind == "corrupt" for f in faults),
             "never_written": n_sentinel,
         }
+        lost_times = missing_time_chunks(ctx.run)
+        if lost_times:
+            values["missing_time"] = [key for key, _, _ in lost_times]
         if faults:
             values["faulty"] = [
                 {
-                    "key": f.ref.key,
+                    "key": f.chunk,
                     "kind": f.kind,
                     "replica": f.ref.replica,
                     "snapshots": [f.ref.start, f.ref.stop],
@@ -55,14 +70,20 @@ class IntegrityCheck(Check):
             f = faults[0]
             more = f"; {len(faults) - 1} more" if len(faults) > 1 else ""
             message = (
-                f"{len(faults)} of {total} chunks unreadable: {f.ref.key} is {f.kind} "
+                f"{len(faults)} of {total} chunks unreadable: {f.chunk} is {f.kind} "
                 f"(replica {f.ref.replica}, snapshots {f.ref.start}..{f.ref.stop - 1}): "
                 f"{f.message}{more}"
             )
             if n_sentinel:
                 message += f"; and {n_sentinel} never-written values"
-            where = {"replica": f.ref.replica, "snapshot": f.ref.start, "chunk": f.ref.key}
+            if lost_times:
+                message += f"; and {_time_text(lost_times)}"
+            where = {"replica": f.ref.replica, "snapshot": f.ref.start, "chunk": f.chunk}
             return self.result("fail", message, values=values, where=where)
+        if lost_times:
+            key, lo, _hi = lost_times[0]
+            where = {"snapshot": lo, "chunk": key}
+            return self.result("fail", _time_text(lost_times), values=values, where=where)
         if n_sentinel:
             r, s, flat = snap.first_sentinel
             dtype = ctx.run.dtype

@@ -4,8 +4,11 @@ Checked: the header validates (a lenient open lists its problems); ``mass`` has 
 dimension names of format v1, the lattice shape of ``lattice.sites`` and an integer dtype;
 ``time`` is 1-D with one entry per snapshot; the declared total mass (or density) is the
 mass of the first snapshot of every replica (that it stays so is ``conservation``'s job);
-``run.seeds`` has one seed per replica. An archive whose writer did not finish
-(``state.complete`` false) is a warning that names the committed extent.
+``run.seeds`` has one seed per replica (at least one per committed replica while the run
+is incomplete: it declares the replicas still to come); the commit marker ``state`` does
+not run ahead of the arrays, and a complete run commits at least one snapshot. An archive
+whose writer did not finish (``state.complete`` false) is a warning that names the
+committed extent.
 """
 
 from __future__ import annotations
@@ -13,9 +16,8 @@ from __future__ import annotations
 from typing import Any, ClassVar
 
 import numpy as np
-import zarr
 
-from massarc.schema import mass_dimensions
+from massarc.schema import WriteState, mass_dimensions
 from massarc.schema.spec import MASS, TIME
 
 from ..engine.registry import Check, CheckContext
@@ -29,9 +31,9 @@ def _array_problems(ctx: CheckContext) -> list[tuple[str, dict[str, Any]]]:
     run, meta = ctx.run, ctx.meta
     assert meta is not None
     out: list[tuple[str, dict[str, Any]]] = []
-    mass = run.group.get(MASS)
-    if not isinstance(mass, zarr.Array):
-        return [(f"no '{MASS}' array in the run", {})]
+    mass = run.array(MASS)
+    if mass is None:
+        return [(run.unreadable.get(MASS, f"no '{MASS}' array in the run"), {})]
     sites = tuple(meta.lattice.sites)
     dims = tuple(mass.metadata.dimension_names or ())
     want = mass_dimensions(len(sites))
@@ -41,9 +43,10 @@ def _array_problems(ctx: CheckContext) -> list[tuple[str, dict[str, Any]]]:
         out.append((f"mass lattice shape: expected {list(sites)}; got {list(mass.shape[2:])}", {}))
     if np.dtype(mass.dtype).kind not in "ui":
         out.append((f"mass dtype: expected an integer dtype; got {mass.dtype}", {}))
-    time = run.group.get(TIME)
-    if not isinstance(time, zarr.Array):
-        out.append((f"no '{TIME}' array in the run", {}))
+    out.extend((text, {}) for text in _marker_problems(run.state, tuple(mass.shape)))
+    time = run.array(TIME)
+    if time is None:
+        out.append((run.unreadable.get(TIME, f"no '{TIME}' array in the run"), {}))
     elif time.ndim != 1 or time.shape[0] != mass.shape[1]:
         out.append(
             (
@@ -53,11 +56,42 @@ def _array_problems(ctx: CheckContext) -> list[tuple[str, dict[str, Any]]]:
             )
         )
     seeds = meta.run.seeds
-    if seeds is not None and len(seeds) != run.n_replicas:
+    if seeds is not None and run.complete and len(seeds) != run.n_replicas:
         out.append(
             (f"run.seeds: expected {run.n_replicas} seeds (one per replica); got {len(seeds)}", {})
         )
+    elif seeds is not None and len(seeds) < run.n_replicas:  # a partial run declares them all
+        out.append(
+            (
+                f"run.seeds: expected at least {run.n_replicas} seeds (one per committed "
+                f"replica); got {len(seeds)}",
+                {},
+            )
+        )
     out.extend(_total_problems(ctx))
+    return out
+
+
+def _marker_problems(state: WriteState, shape: tuple[int, ...]) -> list[str]:
+    """Disagreements between the commit marker and the ``mass`` array: the marker may lag
+    the arrays (a writer grows them first), never run ahead of them; a complete run
+    commits at least one snapshot of one replica."""
+    out = []
+    if state.snapshots > shape[1]:
+        out.append(
+            f"state.snapshots: expected at most {shape[1]} (the length of mass); "
+            f"got {state.snapshots}"
+        )
+    if state.replicas > shape[0]:
+        out.append(
+            f"state.replicas: expected at most {shape[0]} (the replicas of mass); "
+            f"got {state.replicas}"
+        )
+    if state.complete and (state.snapshots == 0 or state.replicas == 0):
+        out.append(
+            f"state: complete is true but {state.snapshots} snapshots are committed "
+            f"({state.replicas} replicas); expected at least one"
+        )
     return out
 
 
