@@ -101,6 +101,36 @@ def test_export_and_back_without_meta(tmp_path):
     assert code == 0 and "csv-long" in out and "--from NAME" in out
 
 
+@pytest.mark.parametrize(
+    ("destination", "expect"),
+    [
+        (".", "does not contain the source"),  # the parent directory (issue 11, defect 10)
+        ("a.zarr", "other than the source"),
+        ("a.zarr/out.npz", "outside the source"),
+    ],
+)
+def test_overwrite_never_deletes_or_writes_into_the_source(tmp_path, destination, expect):
+    # before the guard, `convert anc/run.zarr anc --to zarr --overwrite` removed run.zarr and
+    # every unrelated file of anc/ (common practice: a destination must not hold the input)
+    meta = parse_metadata(SMALL)
+    with create_run(tmp_path / "a.zarr", meta) as w:
+        w.append([0.0, 0.5], np.array([[[1, 0, 2], [0, 1, 2]]]))
+    (tmp_path / "notes.txt").write_text("field notes")
+    before = {p: _digest(p) for p in (tmp_path / "a.zarr", tmp_path / "notes.txt")}
+    dst = tmp_path / destination
+    code, _, err = _run(
+        "convert",
+        tmp_path / "a.zarr",
+        dst,
+        "--to",
+        "zarr" if destination == "." else "npz",
+        "--overwrite",
+    )
+    assert code == 2 and expect in err and err.count("\n") == 1, err
+    assert {p: _digest(p) for p in before} == before
+    assert not (tmp_path / "a.zarr" / "out.npz").exists()
+
+
 # -- bad input ------------------------------------------------------------------------
 
 

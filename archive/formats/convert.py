@@ -68,6 +68,24 @@ def split_options(
     return read_options, write_options
 
 
+def _guard_apart(src: Path, dst: Path, src_text: str, dst_text: str) -> None:
+    """Refuse a destination that is, contains or lies inside the source: replacing it would
+    delete the source, and writing inside it would modify an input."""
+    s, d = src.resolve(), dst.resolve()
+    if s == d:
+        raise ArchiveError(f"{dst_text}: expected a destination other than the source")
+    if d in s.parents:
+        raise ArchiveError(
+            f"{dst_text}: expected a destination that does not contain the source {src_text}; "
+            "replacing it would delete the source"
+        )
+    if s in d.parents:
+        raise ArchiveError(
+            f"{dst_text}: expected a destination outside the source {src_text}; inputs are "
+            "never modified"
+        )
+
+
 def _remove(path: Path) -> None:
     if path.is_dir() and not path.is_symlink():
         shutil.rmtree(path, ignore_errors=True)
@@ -114,8 +132,8 @@ def convert(
     dst_text = os.fspath(dst)
     dst_path = local_path(dst_text)
     src_path = local_path(os.fspath(src))
-    if dst_path is not None and src_path is not None and dst_path.resolve() == src_path.resolve():
-        raise ArchiveError(f"{dst_text}: expected a destination other than the source")
+    if dst_path is not None and src_path is not None:
+        _guard_apart(src_path, dst_path, os.fspath(src), dst_text)
     into_archive = partial(
         _to_archive,
         reader,
