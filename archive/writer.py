@@ -108,6 +108,8 @@ class RunWriter:
         self._buf_len = 0
         self._last_commit = _time.monotonic()
         self._closed = False
+        #: the write state before :func:`resume_run` reopened the run (None otherwise)
+        self.resumed_from: WriteState | None = None
         self._first_totals: dict[int, int] = {}
         self._times: np.ndarray = (
             np.asarray(group[TIME][: state.snapshots]) if TIME in group else np.empty(0)
@@ -458,6 +460,19 @@ class RunWriter:
         self._group.update_attributes({ATTRIBUTE_KEY: _header_dict(self.meta, self.state)})
         self._last_commit = _time.monotonic()
 
+    def undo_resume(self) -> bool:
+        """Put back the write state a resumed run had before :func:`resume_run`, when
+        nothing has been committed since (a refused resume changes nothing). True if done."""
+        before = self.resumed_from
+        if before is None:
+            return False
+        same = (before.replicas, before.snapshots, before.open_replica)
+        if (self.state.replicas, self.state.snapshots, self.state.open_replica) != same:
+            return False
+        self.state = before
+        self._commit()
+        return True
+
 
 def create_run(
     location: Location,
@@ -528,6 +543,7 @@ def resume_run(
     writer = RunWriter(
         group, header.metadata, state, name=name, strict=strict, commit_seconds=commit_seconds
     )
+    writer.resumed_from = header.state
     nrep = state.replicas + (1 if state.open_replica is not None else 0)
     writer._resize((nrep, state.snapshots))
     if state.snapshots and MASS in group:

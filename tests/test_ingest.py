@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from massarc.archive import open_run
+from massarc.archive import DataError, open_run
 from massarc.archive.formats.ingest import ingest
 
 MASSARC = str(Path(sys.executable).with_name("massarc"))
@@ -195,3 +195,23 @@ def test_resume_of_an_archive_never_begun_starts_it(tmp_path, meta):
         report = ingest(f, tmp_path / "new.zarr", meta=meta, resume=True)
     assert report.complete and report.appended == 10 and report.skipped == 0
     _equal(tmp_path / "new.zarr", mass)
+
+
+def test_a_refused_resume_changes_nothing(tmp_path, meta):
+    # issue 11, defect 9: a wrong stream fed to `ingest --resume` of a finished archive was
+    # refused, but left the archive marked incomplete
+    stream, _ = _stream(tmp_path, replicas=2, snapshots=5)
+    done = tmp_path / "done.zarr"
+    with open(stream, "rb") as f:
+        assert ingest(f, done, meta=meta).complete
+    before = {p: p.read_bytes() for p in sorted(done.rglob("*")) if p.is_file()}
+    wrong = tmp_path / "wrong.txt"
+    wrong.write_text(
+        stream.read_text().replace("# replica 0\n", "# replica 0\n0.0 " + "1 " * 19 + "2\n", 1)
+    )
+    with open(wrong, "rb") as f, pytest.raises(DataError) as err:
+        ingest(f, done, meta=meta, resume=True)
+    assert "in the archive being resumed; is this the same run?" in str(err.value)
+    after = {p: p.read_bytes() for p in sorted(done.rglob("*")) if p.is_file()}
+    assert after == before
+    assert _state(done)["complete"] is True

@@ -177,6 +177,11 @@ def ingest(
             state.snapshots,
             state.complete,
         )
+    except BaseException:
+        if resume and writer is not None:
+            with contextlib.suppress(Exception):
+                writer.undo_resume()  # a refused resume changes nothing
+        raise
     finally:
         if own:
             os.close(stream) if isinstance(stream, int) else stream.close()  # type: ignore[union-attr]
