@@ -215,3 +215,22 @@ def test_a_refused_resume_changes_nothing(tmp_path, meta):
     after = {p: p.read_bytes() for p in sorted(done.rglob("*")) if p.is_file()}
     assert after == before
     assert _state(done)["complete"] is True
+
+
+def test_steady_input_is_committed_at_least_every_commit_interval(tmp_path, meta):
+    # issue 11, defect 8: with a producer printing every 20 ms (never idle for the 50 ms
+    # grace) nothing was committed after 5 s, and a kill lost everything received
+    stream, _ = _stream(tmp_path, replicas=1, snapshots=400)  # 8 s of output at 20 ms
+    dst = tmp_path / "steady.zarr"
+    feeder = _feed(stream, dst, 0.02)
+    proc = _ingest("-", dst, meta, stdin=feeder.stdout)
+    feeder.stdout.close()
+    try:
+        st = _wait(dst, lambda st: st.get("snapshots", 0) >= 10, timeout=5.0)
+        assert feeder.poll() is None, "the producer finished before anything was committed"
+        assert not st.get("complete")
+    finally:
+        proc.kill()
+        feeder.kill()
+        proc.wait(timeout=30)
+        feeder.wait(timeout=30)

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import time
 from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
@@ -118,6 +119,7 @@ def ingest(
         parser = LineParser(label, TEXT_MAGIC)
         width: dict[str, int] = {}
         last_replica: int | None = None
+        committed = time.monotonic()
         try:
             for buf, first, idle in reader:
                 for rows in parser.parse(buf, first):
@@ -142,8 +144,11 @@ def ingest(
                         feeder.commit()
                     last_replica = rows.replica
                     feeder.feed(batch)
-                if idle and feeder is not None:
+                due = commit_seconds is not None and time.monotonic() - committed >= commit_seconds
+                if feeder is not None and (idle or due):
+                    # idle input, or steady input for commit_seconds: commit what arrived
                     feeder.commit()
+                    committed = time.monotonic()
         except BaseException:
             if feeder is not None:
                 # keep every valid snapshot read before the fault (which may itself be in
