@@ -38,6 +38,7 @@ from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
+from _common import reusable
 
 OUT = Path(__file__).parent / "out"
 DATA = OUT / "check-data"
@@ -47,20 +48,14 @@ BASIC = ["schema", "integrity", "time-order", "nonnegative", "conservation"]
 
 def build(gib: float) -> Path:
     """The cached run of ``gib`` GiB of uncompressed masses (built on first use)."""
-    from massarc.archive import open_run
     from massarc.schema import parse_metadata
     from massarc.simulate import simulate, snapshot_times
 
     per_snapshot = SITES * 2 * REPLICAS  # uint16
     n = round(gib * 2**30 / per_snapshot)
     path = DATA / f"zrp-{SITES}-{n}.zarr"
-    if path.exists():
-        try:
-            run = open_run(path)
-            if run.complete and run.n_snapshots == n:
-                return path
-        except Exception:
-            pass
+    if reusable(path, n):
+        return path
     meta = parse_metadata(
         {
             "model": {"family": "zrp", "b": B, "drift": "asymmetric"},

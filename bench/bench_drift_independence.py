@@ -38,6 +38,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from _common import reusable
 
 OUT = Path(__file__).parent / "out"
 DATA = OUT / "drift-independence-data"
@@ -45,18 +46,12 @@ NEW = ("drift", "independence")
 
 
 def build(sites: int, snapshots: int) -> Path:
-    from massarc.archive import open_run
     from massarc.schema import parse_metadata
     from massarc.simulate import simulate
 
     path = DATA / f"zrp-{sites}-{snapshots}.zarr"
-    if path.exists():
-        try:
-            run = open_run(path)
-            if run.complete and run.n_snapshots == snapshots:
-                return path
-        except Exception:
-            pass
+    if reusable(path, snapshots):
+        return path
     meta = parse_metadata(
         {
             "model": {"family": "zrp", "b": 4.0, "drift": "asymmetric", "right_probability": 0.8},

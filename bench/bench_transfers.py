@@ -28,6 +28,8 @@ import time
 import timeit
 from pathlib import Path
 
+from _common import reusable
+
 from massarc.archive import open_run
 from massarc.archive.scan import default_workers, scan
 from massarc.schema import parse_metadata
@@ -41,13 +43,8 @@ SITES, REPLICAS = 5000, 4
 
 def build(snapshots: int) -> Path:
     path = DATA / f"zrp-{SITES}-{snapshots}.zarr"
-    if path.exists():
-        try:
-            run = open_run(path)
-            if run.complete and run.n_snapshots == snapshots:
-                return path
-        except Exception:
-            pass
+    if reusable(path, snapshots):
+        return path
     meta = parse_metadata(
         {
             "model": {"family": "zrp", "b": 4.0},

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-from scipy.stats import beta
+from _common import interval
 
 from massarc.archive import create_run
 from massarc.schema import InitialCondition, RunMeta, parse_metadata
@@ -210,13 +210,6 @@ FAULTS: dict[str, Callable[..., tuple[Path, str]]] = {
     "coarsening run labelled stationary, random start declared": fault_coarsening(True),
     "coarsening run labelled stationary, start not declared": fault_coarsening(False),
 }
-
-
-def interval(k: int, n: int) -> tuple[float, float]:
-    """Clopper-Pearson 95% interval for k successes in n trials."""
-    lo = 0.0 if k == 0 else float(beta.ppf(0.025, k, n - k + 1))
-    hi = 1.0 if k == n else float(beta.ppf(0.975, k + 1, n - k))
-    return lo, hi
 
 
 def main() -> None:

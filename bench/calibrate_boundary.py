@@ -37,7 +37,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-from scipy.stats import beta
+from _common import interval
 
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
@@ -126,13 +126,6 @@ def judge(run: Run) -> tuple[str, dict]:
     res = BoundaryCheck().run(CheckContext(run, run.meta, stats, options))
     x = res.values.get("axes", [{}])[-1] if res.values.get("axes") else {}
     return res.status, x
-
-
-def interval(k: int, n: int) -> tuple[float, float]:
-    """Clopper-Pearson 95% interval for k successes in n trials (scipy.stats.beta)."""
-    lo = 0.0 if k == 0 else float(beta.ppf(0.025, k, n - k + 1))
-    hi = 1.0 if k == n else float(beta.ppf(0.975, k + 1, n - k))
-    return lo, hi
 
 
 def run_cell(cell: Cell, spacing: float, runs: int, seed: int) -> dict:

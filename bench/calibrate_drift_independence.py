@@ -43,7 +43,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-from scipy.stats import beta
+from _common import interval
 
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
@@ -175,13 +175,6 @@ def one_run(family: str, drift: str, boundary: str, spacing: float, seed: int) -
     faults["planted"] = {"shift": k, "roll": s}
     out["independence"] = faults
     return out
-
-
-def interval(k: int, n: int) -> tuple[float, float]:
-    """Clopper-Pearson 95% interval for k successes in n trials."""
-    lo = 0.0 if k == 0 else float(beta.ppf(0.025, k, n - k + 1))
-    hi = 1.0 if k == n else float(beta.ppf(0.975, k + 1, n - k))
-    return lo, hi
 
 
 def _located(fault: str, v: dict[str, Any]) -> bool:

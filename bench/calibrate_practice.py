@@ -27,7 +27,7 @@ from collections import Counter
 from pathlib import Path
 
 import numpy as np
-from scipy.stats import beta
+from _common import interval
 
 from massarc.schema import RunMeta, parse_metadata
 from massarc.schema.laws import relaxation_time
@@ -79,12 +79,6 @@ def one_run(name: str, spacing: float, seed: int) -> tuple[dict[str, str], float
     report = audit([run])
     tau = relaxation_time(meta) or float("nan")
     return {c.id: c.status for c in report.runs[0].checks}, float(times[-1]) / tau
-
-
-def interval(k: int, n: int) -> tuple[float, float]:
-    lo = 0.0 if k == 0 else float(beta.ppf(0.025, k, n - k + 1))
-    hi = 1.0 if k == n else float(beta.ppf(0.975, k + 1, n - k))
-    return lo, hi
 
 
 def main() -> None:

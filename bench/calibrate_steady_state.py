@@ -52,9 +52,10 @@ from typing import Any
 
 import numpy as np
 from scipy.signal import lfilter
-from scipy.stats import beta
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from _common import interval
 
 from bench._steady_runs import Reduced, context, hop_time, make_meta, simulate_reduced
 from massarc.schema import RunMeta
@@ -72,13 +73,6 @@ RHO = 2.0
 ZRP_SYM = {"family": "zrp", "b": 4.0}
 ZRP_DRIVEN = {"family": "zrp", "b": 4.0, "drift": "asymmetric"}
 CMAM = {"family": "cmam", "diffusion": 1.0, "chipping": 1.0}
-
-
-def interval(k: int, n: int) -> tuple[float, float]:
-    """Clopper-Pearson 95 % interval of k events in n runs (scipy.stats.beta)."""
-    lo = 0.0 if k == 0 else float(beta.ppf(0.025, k, n - k + 1))
-    hi = 1.0 if k == n else float(beta.ppf(0.975, k + 1, n - k))
-    return lo, hi
 
 
 def meta_of(model: dict[str, Any], sites: int, initial: str | None = None) -> RunMeta:
