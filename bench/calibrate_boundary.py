@@ -41,6 +41,7 @@ from _common import interval
 
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
+from massarc.archive.stats import SnapshotStatistic
 from massarc.schema import RunMeta, parse_metadata
 from massarc.simulate import simulate
 from massarc.validators import CheckContext
@@ -121,7 +122,9 @@ def declared(mass: np.ndarray, times: np.ndarray, meta: RunMeta) -> Run:
 
 
 def judge(run: Run) -> tuple[str, dict]:
-    stats = scan(run, {"transfers": TransferStatistic(run)}).results
+    stats = scan(
+        run, {"transfers": TransferStatistic(run), "snapshots": SnapshotStatistic(run)}
+    ).results
     options = BoundaryCheck.option_values()
     res = BoundaryCheck().run(CheckContext(run, run.meta, stats, options))
     x = res.values.get("axes", [{}])[-1] if res.values.get("axes") else {}

@@ -18,6 +18,7 @@ import pytest
 
 from massarc.archive import Run, create_run, open_run
 from massarc.archive.scan import scan
+from massarc.archive.stats import SnapshotStatistic
 from massarc.schema import RunMeta, parse_metadata
 from massarc.simulate import simulate
 from massarc.validators import CheckContext
@@ -70,7 +71,8 @@ def redeclare(run: Run, boundary: list[str], **series: np.ndarray) -> Run:
 
 
 def check(run: Run, **options):
-    stats = scan(run, {"transfers": TransferStatistic(run)}).results
+    stats = scan(run, {"transfers": TransferStatistic(run), "snapshots": SnapshotStatistic(run)})
+    stats = stats.results
     ctx = CheckContext(run, run.meta, stats, BoundaryCheck.option_values(options))
     return BoundaryCheck().run(ctx)
 

@@ -46,6 +46,7 @@ __all__ = [
     "dt_for",
     "influence",
     "profile_centre",
+    "run_density",
     "transport_of",
     "walls_centre",
 ]
@@ -95,6 +96,20 @@ def influence(dt: float, drift: float, transport: Transport, ndim: int) -> float
         return math.inf
     share = transport.r_max * dt / ndim
     return drift * transport.c1 * dt / ndim + 3.0 * math.sqrt(share) + 1.0
+
+
+def run_density(snapshots: Any, meta: Any, volume: int) -> float | None:
+    """The density the transport is evaluated at: the mean total mass per site of the
+    ``snapshots`` statistic when there is one, else the declared density (or total mass
+    over ``volume``); None when nothing tells it."""
+    volume = max(1, int(volume))
+    if snapshots is not None and snapshots.valid.any():
+        return float(snapshots.total[snapshots.valid].mean()) / volume
+    if meta is not None and meta.run.density is not None:
+        return float(meta.run.density)
+    if meta is not None and meta.run.total_mass is not None:
+        return float(meta.run.total_mass) / volume
+    return None
 
 
 def carried(dt: float, drift: float, transport: Transport | None, ndim: int) -> float:

@@ -43,7 +43,7 @@ import numpy as np
 
 from massarc.schema.spec import mass_dimensions
 
-from ...analysis.transport import carried, transport_of
+from ...analysis.transport import carried, run_density, transport_of
 from ...engine.registry import Check, CheckContext, Option
 from ...engine.result import CheckResult
 from .events import EventAudit, audit_events
@@ -66,7 +66,7 @@ class BoundaryCheck(Check):
 
     id = "boundary"
     description = "declared boundaries agree with the data (bond transfers, event log)"
-    needs: ClassVar = {"transfers": {}}
+    needs: ClassVar = {"transfers": {}, "snapshots": {}}
     provides: ClassVar = (TransferStatistic,)
     options: ClassVar = {
         "alpha": Option(1e-4, float, "false-alarm rate of each axis's test"),
@@ -208,13 +208,9 @@ def _carried(ctx: CheckContext, right_probability: float | None) -> float:
     times = np.asarray(ctx.run.times, dtype=np.float64)
     if meta is None or right_probability is None or len(times) < 2:
         return 0.0
-    volume = max(1, meta.lattice.volume)
-    if meta.run.density is not None:
-        density = float(meta.run.density)
-    elif meta.run.total_mass is not None:
-        density = float(meta.run.total_mass) / volume
-    else:
-        density = float(ctx.run.read(0, 0, 1).sum()) / volume
+    density = run_density(ctx.stats.get("snapshots"), meta, meta.lattice.volume)
+    if density is None:
+        return 0.0
     dt = float(np.max(np.diff(times)))
     drift = abs(2.0 * float(right_probability) - 1.0)
     return carried(dt, drift, transport_of(meta.model, density), meta.lattice.ndim)

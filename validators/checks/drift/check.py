@@ -41,7 +41,7 @@ from massarc.archive.stats import ProfileStats
 from massarc.schema import CMAMModel, ZRPModel
 from massarc.schema.spec import mass_dimensions
 
-from ...analysis.transport import transport_of, walls_centre
+from ...analysis.transport import run_density, transport_of, walls_centre
 from ...engine.registry import Check, CheckContext, Option
 from ...engine.result import CheckResult
 from .._common import fault_note
@@ -100,7 +100,8 @@ class DriftCheck(Check):
         if st is None:
             return self.result("skip", "the spacetime statistic is not available")
         ndim = meta.lattice.ndim
-        density = _density(ctx)
+        volume = int(np.prod(ctx.run.sites))
+        density = run_density(ctx.stats.get("snapshots"), ctx.meta, volume) or 1.0
         transport = transport_of(model, density)
         p = float(model.right_probability)
         mass = density * float(np.prod(ctx.run.sites))
@@ -175,17 +176,6 @@ class DriftCheck(Check):
         if parts:
             summary += "; not decided: " + "; ".join(parts)
         return self.result("pass", summary + suffix, values=values, thresholds=thresholds)
-
-
-def _density(ctx: CheckContext) -> float:
-    snap = ctx.stats.get("snapshots")
-    volume = max(1, int(np.prod(ctx.run.sites)))
-    if snap is not None and snap.valid.any():
-        return float(snap.total[snap.valid].mean()) / volume
-    meta = ctx.meta
-    if meta is not None and meta.run.density is not None:
-        return float(meta.run.density)
-    return 1.0
 
 
 def _failure(v: AxisDrift, name: str, p: float) -> str:
