@@ -26,7 +26,8 @@ from typing import Any
 
 import numpy as np
 import zarr
-from zarr.storage import LocalStore
+from zarr.abc.store import Store
+from zarr.storage import FsspecStore, LocalStore
 
 from massarc.schema import ArchiveHeader, MetadataError, RunMeta, WriteState, parse_header
 from massarc.schema.spec import (
@@ -41,6 +42,7 @@ from massarc.schema.spec import (
 from .allow import run_problem
 from .errors import ArchiveError, NotARunError
 from .limits import extent_problem, local_problem, max_ratio, needs_listing, stored_size
+from .remote import CappedStore, remote_run_keys
 from .store import Location, local_path, location_name, open_store
 
 __all__ = ["Chunk", "ChunkRef", "Run", "open_run", "open_runs"]
@@ -429,7 +431,15 @@ def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
         if not runs:
             raise NotARunError(f"{name}: directory holds no massarc run")
         return runs
-    group = _open_group(location)
+    try:
+        group = _open_group(location)
+    except NotARunError:
+        if path is not None or isinstance(location, Store):
+            raise
+        runs = _remote_runs(os.fspath(location), name, lenient)
+        if not runs:
+            raise NotARunError(f"{name}: holds no massarc run") from None
+        return runs
     if _is_run(group):
         return [_from_group(group, name, lenient)]
     raw = group.attrs.get(ATTRIBUTE_KEY)
@@ -446,3 +456,30 @@ def open_runs(location: Location, *, lenient: bool = False) -> list[Run]:
         kind = "collection" if is_collection else "group"
         raise NotARunError(f"{name}: this {kind} holds no massarc run")
     return runs
+
+
+def _remote_runs(url: str, name: str, lenient: bool) -> list[Run]:
+    """The runs below a URL prefix that is not itself a Zarr group (a "directory" of runs
+    in an object store), found by listing its ``zarr.json`` objects; a run inside a run is
+    not descended into, and one that cannot be opened is listed as broken."""
+    store = open_store(url, "r")
+    inner = store._store if isinstance(store, CappedStore) else store
+    keys = remote_run_keys(inner) if isinstance(inner, FsspecStore) else None
+    runs: list[Run] = []
+    taken: list[str] = []
+    for key in keys or []:
+        if any(key.startswith(f"{t}/") for t in taken):
+            continue
+        child = f"{url.rstrip('/')}/{key}"
+        try:
+            group = _open_group(child)
+        except Exception as exc:  # reported as this run's failure
+            if not lenient:
+                raise
+            taken.append(key)
+            runs.append(_broken(f"{name.rstrip('/')}/{key}", f"{key}/zarr.json: {exc}"))
+            continue
+        if _is_run(group):
+            taken.append(key)
+            runs.append(_from_group(group, f"{name.rstrip('/')}/{key}", lenient))
+    return sorted(runs, key=lambda r: r.name)

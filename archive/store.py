@@ -4,7 +4,9 @@
   ``*.partial`` file that is then renamed, so a chunk or a metadata file is never seen
   half-written;
 * ``memory://name``: fsspec's process-wide memory file system (handy in tests);
-* ``*.zip``: :class:`zarr.storage.ZipStore`, read-only (a zip cannot be appended to safely).
+* ``*.zip``: :class:`zarr.storage.ZipStore`, read-only (a zip cannot be appended to safely);
+* any other fsspec URL (``s3://``, ``gs://``, ``https://``, ...): :class:`FsspecStore`, read
+  through :class:`~.remote.CappedStore` (see :mod:`.remote`: credentials, size caps).
 """
 
 from __future__ import annotations
@@ -19,6 +21,7 @@ from zarr.abc.store import Store
 from zarr.storage import FsspecStore, LocalStore, ZipStore
 
 from .errors import ArchiveError
+from .remote import CappedStore, redact, redact_text
 
 __all__ = ["Location", "local_path", "location_name", "open_store"]
 
@@ -43,7 +46,8 @@ def location_name(location: Location) -> str:
     """A short human name for a location, used in messages."""
     if isinstance(location, Store):
         return str(location)
-    return os.fspath(location)
+    text = os.fspath(location)
+    return redact(text) if "://" in text else text
 
 
 def open_store(location: Location, mode: str = "r") -> Store:
@@ -74,12 +78,16 @@ def open_store(location: Location, mode: str = "r") -> Store:
         if read_only and not path.exists():
             raise ArchiveError(f"{text}: no such file or directory")
         return LocalStore(path, read_only=read_only)
-    if text.startswith("memory://"):
-        return FsspecStore.from_url(text, read_only=read_only)
     try:
-        return FsspecStore.from_url(text, read_only=read_only)
+        store = FsspecStore.from_url(text, read_only=read_only)
     except Exception as exc:  # fsspec raises many kinds for unknown protocols
-        raise ArchiveError(f"{text}: cannot open this URL ({exc})") from None
+        raise ArchiveError(f"{redact(text)}: cannot open this URL ({_one_line(exc)})") from None
+    return CappedStore(store) if read_only else store
+
+
+def _one_line(exc: BaseException) -> str:
+    lines = str(exc).strip().splitlines()
+    return redact_text(lines[0][:200]) if lines else type(exc).__name__
 
 
 def _guard_zip(path: Path, name: str) -> None:
