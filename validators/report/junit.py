@@ -2,9 +2,10 @@
 
 ``classname`` is the run's path and ``name`` the check id. A failed check carries a
 ``<failure>``, one that raised an ``<error>``, a skipped one ``<skipped>`` (the reason as
-its text); a warning passes, with its message in ``<system-out>``. Written with :mod:`xml.etree`, so the
-document is well-formed and escaped whatever the messages hold. The document conforms to
-the JUnit schema CI servers read (the Jenkins JUnit XSD; ``tests/fixtures/junit/``).
+its text); a warning passes, with its message in ``<system-out>``. Written with
+:mod:`xml.etree`, so the document is well-formed and escaped whatever the messages hold.
+It conforms to the JUnit schema CI servers read (the Jenkins JUnit XSD,
+``tests/fixtures/junit/``).
 """
 
 from __future__ import annotations
