@@ -5,7 +5,8 @@ the run: ``ring.zarr/mass/c/0/3/0``, ``ring.zarr/zarr.json``. :func:`enclosing_r
 each file to the nearest directory above it (or itself) whose ``zarr.json`` carries the
 massarc attribute: a run, or a collection when the file belongs to the collection's own
 metadata rather than to one of its runs. Files outside any run are ignored; each run is
-named once, in the order first met.
+named once, in the order first met, and not at all when a collection holding it is named
+(the collection's audit covers it).
 
 >>> enclosing_runs(["samples/dune-strip.zarr/mass/zarr.json", "README.md"])
 ['samples/dune-strip.zarr']
@@ -18,14 +19,15 @@ import os
 from collections.abc import Iterable
 from pathlib import Path
 
-from massarc.schema.spec import ATTRIBUTE_KEY
+from massarc.schema.spec import ATTRIBUTE_KEY, COLLECTION_KIND, RUN_KIND
 
 __all__ = ["enclosing_runs"]
 
 
 def _is_massarc_node(directory: Path) -> bool:
-    """True when ``directory/zarr.json`` is a group carrying the massarc attribute, or cannot
-    be read as JSON at all (a damaged run is for the audit to report, not to be skipped)."""
+    """True when ``directory/zarr.json`` declares a run or a collection (the ``format`` of
+    its massarc attribute), or cannot be read as a JSON object at all (a damaged run is for
+    the audit to report, not to be skipped)."""
     node = directory / "zarr.json"
     if not node.is_file():
         return False
@@ -36,11 +38,13 @@ def _is_massarc_node(directory: Path) -> bool:
     if not isinstance(doc, dict):
         return True
     attrs = doc.get("attributes")
-    return isinstance(attrs, dict) and ATTRIBUTE_KEY in attrs
+    raw = attrs.get(ATTRIBUTE_KEY) if isinstance(attrs, dict) else None
+    return isinstance(raw, dict) and raw.get("format") in (RUN_KIND, COLLECTION_KIND)
 
 
 def enclosing_runs(files: Iterable[str | os.PathLike[str]]) -> list[str]:
-    """The runs (or collections) holding ``files``, each once, in the order first met.
+    """The runs (or collections) holding ``files``, each once, in the order first met;
+    a run inside a named collection is left out.
 
     A path is reported as given (relative paths stay relative); a file that no longer
     exists still maps to its run while the run's directory exists (a deleted chunk is a
@@ -65,4 +69,5 @@ def enclosing_runs(files: Iterable[str | os.PathLike[str]]) -> list[str]:
             known[d] = hit
         if hit is not None:
             found.setdefault(hit.as_posix(), None)
-    return list(found)
+    named = [Path(p) for p in found]
+    return [p.as_posix() for p in named if not any(q in p.parents for q in named)]
