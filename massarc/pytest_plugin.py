@@ -8,13 +8,16 @@ unless asked::
 turns every run found under the paths (runs, collections, directories of runs: the same
 discovery as ``massarc check``) into test items, one per run and check, with node ids such
 as ``runs/ring-64.zarr::conservation``. The test suite then fails when the simulator's
-outputs do. Without the option no item is added and no part of massarc's audit is
+outputs do. The option takes every path up to the next option: put test paths before it
+(``pytest tests/ --massarc-runs runs/``) or give one path per ``--massarc-runs=PATH``. Without the option no item is added and no part of massarc's audit is
 imported (``-p no:massarc`` unloads the plugin altogether).
 
 The audit rules are those of ``massarc check`` (:mod:`massarc.validators.engine.settings`):
 ``[tool.massarc]`` of the nearest ``pyproject.toml`` (or ``massarc.toml``) from pytest's
 rootdir upward, never a file that travels with the runs. Each run is audited once, in one
-pass over its chunks, when its first item runs; its other items read that result.
+pass over its chunks, when its first item runs; its other items read that result (with
+pytest-xdist, ``--dist loadscope`` keeps the items of a run on one worker, so that it is
+audited once there too).
 
 Statuses map onto pytest outcomes: ``pass`` passes; ``warn`` passes with a
 :class:`CheckWarning` in the warnings summary (``strict = true`` makes it a failure, as for
@@ -131,9 +134,9 @@ class CheckItem(pytest.Item):
         if result.status == "fail":
             raise CheckFailed(self.parent.name, result)
         if result.status == "warn":
-            warnings.warn(
-                CheckWarning(f"{self.parent.name}: {self.name}: {result.message}"), stacklevel=1
-            )
+            text = f"{self.parent.name}: {self.name}: {result.message}"
+            # located at the run, not at this line of the plugin
+            warnings.warn_explicit(CheckWarning(text), CheckWarning, str(self.path), 0)
 
     def repr_failure(self, excinfo: pytest.ExceptionInfo[BaseException], style: Any = None) -> Any:
         if isinstance(excinfo.value, CheckFailed):
@@ -186,4 +189,8 @@ def pytest_collection_modifyitems(
                 settings=settings,
                 ids=ids,
             )
-            items.extend(node.collect())
+            collected = node.collect()
+            # reported like any collector's items, so that "collected N items" counts them
+            report = pytest.CollectReport(node.nodeid, "passed", None, collected)
+            config.hook.pytest_collectreport(report=report)
+            items.extend(collected)
