@@ -9,8 +9,9 @@ turns every run found under the paths (runs, collections, directories of runs: t
 discovery as ``massarc check``) into test items, one per run and check, with node ids such
 as ``runs/ring-64.zarr::conservation``. The test suite then fails when the simulator's
 outputs do. The option takes every path up to the next option: put test paths before it
-(``pytest tests/ --massarc-runs runs/``) or give one path per ``--massarc-runs=PATH``. Without the option no item is added and no part of massarc's audit is
-imported (``-p no:massarc`` unloads the plugin altogether).
+(``pytest tests/ --massarc-runs runs/``) or give one path per ``--massarc-runs=PATH``.
+Without the option no item is added and no part of massarc's audit is imported
+(``-p no:massarc`` unloads the plugin altogether).
 
 The audit rules are those of ``massarc check`` (:mod:`massarc.validators.engine.settings`):
 ``[tool.massarc]`` of the nearest ``pyproject.toml`` (or ``massarc.toml``) from pytest's

@@ -13,17 +13,16 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
-from typing import ClassVar
 
 import jsonschema
 import numpy as np
 import pytest
 import xmlschema
-from _audit_runs import chunk_file, write_run
+from _audit_runs import RaisingCheck, chunk_file, write_run
 from click.testing import CliRunner
 
 from massarc.cli import cli
-from massarc.validators import AuditReport, Check, CheckContext, audit, register_check, render
+from massarc.validators import AuditReport, audit, register_check, render
 from massarc.validators.engine import registry
 from massarc.validators.report import report_schema
 
@@ -31,15 +30,6 @@ ROOT = Path(__file__).resolve().parents[1]
 COMMITTED = ROOT / "schema" / "report.schema.json"
 JUNIT_XSD = Path(__file__).parent / "fixtures" / "junit" / "jenkins-junit.xsd"
 EXACT = ["schema", "integrity", "time-order", "nonnegative", "conservation"]
-
-
-class _Raises(Check):
-    id = "test-raises"
-    description = "a third-party check with a bug"
-    needs: ClassVar = {"snapshots": {}}
-
-    def run(self, ctx: CheckContext):
-        raise ZeroDivisionError("division by zero in the plugin")
 
 
 def _leak(m: np.ndarray, _t: np.ndarray) -> None:
@@ -67,7 +57,7 @@ def reports(tmp_path_factory) -> dict[str, AuditReport]:
     }
     with pytest.MonkeyPatch.context() as mp:
         mp.setattr(registry, "CHECKS", registry.CHECKS.fresh())
-        register_check(_Raises)
+        register_check(RaisingCheck)
         out["error"] = audit([single], checks=["schema", "test-raises"])
     return out
 

@@ -9,13 +9,12 @@ report text), not our code; a mass leak planted in the data is the known fault.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import ClassVar
 
 import numpy as np
 import pytest
-from _audit_runs import write_run
+from _audit_runs import RaisingCheck, write_run
 
-from massarc.validators import Check, CheckContext, register_check
+from massarc.validators import register_check
 from massarc.validators.engine import registry
 
 pytest_plugins = ["pytester"]
@@ -106,18 +105,9 @@ def test_settings_skip_maps_to_pytest_skip_and_strict_turns_warnings_into_failur
     strict.assert_outcomes(passed=4, failed=1, skipped=5)
 
 
-class _Raises(Check):
-    id = "test-raises"
-    description = "a third-party check with a bug"
-    needs: ClassVar = {"snapshots": {}}
-
-    def run(self, ctx: CheckContext):
-        raise ZeroDivisionError("division by zero in the plugin")
-
-
 def test_a_check_that_raises_is_an_error_of_its_item(pytester, runs, monkeypatch) -> None:
     monkeypatch.setattr(registry, "CHECKS", registry.CHECKS.fresh())
-    register_check(_Raises)
+    register_check(RaisingCheck)
     result = pytester.runpytest("--massarc-runs", str(runs["clean"]))
     result.assert_outcomes(passed=5, skipped=5, errors=1)
     result.stdout.fnmatch_lines(
