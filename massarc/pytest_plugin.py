@@ -174,6 +174,7 @@ def pytest_collection_modifyitems(
     except ConfigError as exc:
         raise pytest.UsageError(f"massarc settings: {exc}") from None
     ids = list(settings.only) if settings.only is not None else list(available_checks())
+    seen: set[str] = set()  # a run under two of the paths is audited once
     for location in locations:
         try:
             runs = open_for_audit(location)
@@ -181,6 +182,9 @@ def pytest_collection_modifyitems(
             raise pytest.UsageError(f"--massarc-runs {location}: {exc}") from None
         for run in runs:
             name = _node_name(run, config.rootpath)
+            if name in seen:
+                continue
+            seen.add(name)
             node = RunNode.from_parent(
                 session,
                 name=name,

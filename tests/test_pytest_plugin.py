@@ -81,6 +81,13 @@ def test_a_directory_of_runs_gives_one_item_per_run_and_check(pytester, runs) ->
         f"runs/{name}.zarr::{c}" for name in ("clean", "leak") for c in checks
     ]
     assert len(ids) == 20  # every registered check, skipped ones included
+    # a run named twice is collected once; -k selects among the items as among tests
+    twice = [str(runs["leak"]), str(pytester.path / "runs")]
+    chosen = pytester.runpytest("--massarc-runs", *twice, "-k", "conservation", "--co", "-q")
+    assert [line for line in chosen.stdout.lines if "::" in line] == [
+        "runs/leak.zarr::conservation",
+        "runs/clean.zarr::conservation",
+    ]
 
 
 def test_thresholds_come_from_tool_massarc(pytester, runs) -> None:
@@ -131,3 +138,7 @@ def test_a_path_without_runs_is_a_usage_error(pytester, runs) -> None:
     result = pytester.runpytest("--massarc-runs", str(pytester.path / "empty"))
     assert result.ret == pytest.ExitCode.USAGE_ERROR
     result.stderr.fnmatch_lines(["*--massarc-runs *empty: *holds no massarc run*"])
+    pytester.makepyprojecttoml('[tool.massarc]\nskip = ["no-such-check"]\n')
+    bad = pytester.runpytest("--massarc-runs", str(runs["clean"]))
+    assert bad.ret == pytest.ExitCode.USAGE_ERROR
+    bad.stderr.fnmatch_lines(["*massarc settings: *pyproject.toml: tool.massarc.skip: *"])
