@@ -8,15 +8,28 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 import numpy as np
 from conftest import make_meta, multinomial_run
 
 from massarc.archive import create_run
 from massarc.schema import RunMeta
+from massarc.validators import Check, CheckContext
 
-__all__ = ["chunk_file", "write_run"]
+__all__ = ["RaisingCheck", "chunk_file", "write_run"]
+
+
+class RaisingCheck(Check):
+    """A third-party check with a bug: it raises on every run (register it in a fresh
+    registry: ``monkeypatch.setattr(registry, "CHECKS", registry.CHECKS.fresh())``)."""
+
+    id = "test-raises"
+    description = "a third-party check with a bug"
+    needs: ClassVar = {"snapshots": {}}
+
+    def run(self, ctx: CheckContext):
+        raise ZeroDivisionError("division by zero in the plugin")
 
 
 def write_run(

@@ -14,6 +14,7 @@ from pathlib import Path
 
 import click
 
+from massarc.archive.enclosing import enclosing_runs
 from massarc.validators import (
     ConfigError,
     audit,
@@ -69,6 +70,13 @@ def _listing() -> str:
     "[tool.massarc], from the current directory up; never a file that travels with the runs).",
 )
 @click.option("--list", "list_", is_flag=True, help="List the registered checks and exit.")
+@click.option(
+    "--from-files",
+    is_flag=True,
+    help="The arguments are files (as a pre-commit hook passes them): audit each run or "
+    "collection that holds one, once; files outside any run are ignored, and none in a run "
+    "is not an error.",
+)
 @click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar; table: only non-passing.")
 def command(
@@ -81,6 +89,7 @@ def command(
     sets: tuple[str, ...],
     config: str | None,
     list_: bool,
+    from_files: bool,
     workers: int | None,
     quiet: bool,
 ) -> None:
@@ -89,6 +98,12 @@ def command(
     if list_:
         click.echo(_listing())
         return
+    if from_files:
+        named = len(runs)
+        runs = tuple(enclosing_runs(runs))
+        if not runs:
+            click.echo(f"{_NAME}: no massarc run holds any of the {named} files", err=True)
+            return
     if not runs:
         die(_NAME, "expected at least one RUN_OR_COLLECTION; got none")
     try:

@@ -30,6 +30,21 @@ def _first_valid(total: np.ndarray, valid: np.ndarray) -> np.ndarray:
 
 
 class ConservationCheck(Check):
+    """Total mass as the boundaries allow.
+
+    Null hypothesis
+    ---------------
+    No mass is created or lost: in a closed system every replica's total mass is the same
+    at every snapshot (the declared ``run.total_mass``, else the replica's first readable
+    snapshot); with open axes the total changes by exactly the archived cumulative inflow
+    minus outflow. Judged exactly, up to ``tolerance``.
+
+    Where
+    -----
+    ``replica`` and ``snapshot`` of the first total that differs from the expected one by
+    more than ``tolerance``.
+    """
+
     id = "conservation"
     description = "total mass is conserved (closed) or matches inflow - outflow (open axes)"
     needs: ClassVar = {"snapshots": {}}

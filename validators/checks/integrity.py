@@ -37,6 +37,21 @@ def _time_text(lost: list[tuple[str, int, int]]) -> str:
 
 
 class IntegrityCheck(Check):
+    """Every chunk present, decodable and intact; no never-written values.
+
+    Null hypothesis
+    ---------------
+    The stored bytes are the written ones: every chunk of ``mass`` and ``time`` is present,
+    decodes and matches its checksum, and no stored mass equals the fill value the writer
+    never stores. Judged exactly.
+
+    Where
+    -----
+    A missing or corrupt ``mass`` chunk: its ``chunk`` key, its ``replica`` and the first
+    ``snapshot`` it holds. A missing ``time`` chunk: its ``chunk`` key and first
+    ``snapshot``. A never-written value: its ``replica``, ``snapshot`` and ``site``.
+    """
+
     id = "integrity"
     description = "every chunk is present, decodes and passes its checksum; no never-written values"
     needs: ClassVar = {"snapshots": {}}

@@ -17,6 +17,17 @@ __all__ = ["NonNegativeCheck"]
 
 
 class NonNegativeCheck(Check):
+    """Every mass a non-negative integer.
+
+    Null hypothesis
+    ---------------
+    Every stored mass is a finite, non-negative integer. Judged exactly.
+
+    Where
+    -----
+    ``replica``, ``snapshot`` and ``site`` of the first offending value.
+    """
+
     id = "nonnegative"
     description = "every mass is a non-negative integer"
     needs: ClassVar = {"snapshots": {}}

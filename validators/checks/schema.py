@@ -121,6 +121,22 @@ def _total_problems(ctx: CheckContext) -> list[tuple[str, dict[str, Any]]]:
 
 
 class SchemaCheck(Check):
+    """Metadata valid, consistent with the arrays; archive complete.
+
+    Null hypothesis
+    ---------------
+    The run is what its header says: the header validates, the arrays have the declared
+    dimension names, lattice shape, dtype and extent, the declared total mass is the mass
+    of every replica's first snapshot, there is one seed per replica, and the writer
+    finished (an unfinished archive warns). Judged exactly.
+
+    Where
+    -----
+    ``replica`` and ``snapshot`` 0 of the first replica whose first snapshot does not hold
+    the declared total mass; no location for the other findings (the message names the
+    key).
+    """
+
     id = "schema"
     description = "metadata valid and consistent with the arrays; archive complete"
     needs: ClassVar = {"snapshots": {}}

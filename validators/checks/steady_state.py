@@ -81,7 +81,18 @@ _DEFAULTS = WindowSettings()
 
 
 class SteadyStateCheck(Check):
-    """Stationarity of a run: detected start, drift, R-hat, ESS, model law, run length."""
+    """Stationarity of a run: detected start, drift, R-hat, ESS, model law, run length.
+
+    Null hypothesis
+    ---------------
+    For a run labelled stationary (``run.regime = "stationary"``): from the detected start
+    on, every replica is a stationary series and the replicas are independent copies of
+    one process. Statistics, p-values and thresholds: the module docstring.
+
+    Where
+    -----
+    ``snapshot``: the detected start of the stationary window, when one was found.
+    """
 
     id = "steady-state"
     description = "the run is stationary as labelled (drift, R-hat, ESS, law, relaxation time)"

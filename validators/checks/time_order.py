@@ -13,6 +13,19 @@ __all__ = ["TimeOrderCheck"]
 
 
 class TimeOrderCheck(Check):
+    """Snapshot times finite and strictly increasing.
+
+    Null hypothesis
+    ---------------
+    The ``time`` array has one finite entry per snapshot, each larger than the one before.
+    Judged exactly.
+
+    Where
+    -----
+    ``snapshot``: the first snapshot whose time is not finite or not larger than the
+    previous one.
+    """
+
     id = "time-order"
     description = "snapshot times are finite and strictly increasing"
     requires: ClassVar = ("data",)

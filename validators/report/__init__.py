@@ -14,6 +14,7 @@ from __future__ import annotations
 import io
 
 from .data import report_dict, report_json
+from .document import report_schema
 from .junit import report_junit
 from .model import AuditReport, RunReport
 from .table import STATUS_STYLE, render_table
@@ -28,6 +29,7 @@ __all__ = [
     "report_dict",
     "report_json",
     "report_junit",
+    "report_schema",
 ]
 
 #: Names of the renderings of a report (``massarc check --as NAME``).

@@ -62,7 +62,24 @@ def _fmt(x: float) -> str:
 
 
 class BoundaryCheck(Check):
-    """Declared boundaries against the data: transfer tests per axis, exact event audit."""
+    """Declared boundaries against the data: transfer tests per axis, exact event audit.
+
+    Null hypothesis
+    ---------------
+    Per axis of at least 8 sites: on a periodic axis, the axis is a ring (the seam's rank
+    among evenly spaced cut bonds is uniform); on a reflecting or open axis, the transfers
+    reconstructed from the masses are the true ones (far-apart bonds carry nearly
+    independent transfers; none runs against a declared total drift). From an event log,
+    exactly: every logged move joins declared neighbours. Statistics and p-values: the
+    module docstring.
+
+    Where
+    -----
+    An event log move between undeclared neighbours: its ``replica`` and ``site``
+    [source, target]. A transfer against the declared drift: its ``replica`` and
+    ``snapshot``. A failed statistical test of an axis: no location (the message names the
+    axis).
+    """
 
     id = "boundary"
     description = "declared boundaries agree with the data (bond transfers, event log)"

@@ -64,7 +64,20 @@ def _towards(sign: int, name: str) -> str:
 
 
 class DriftCheck(Check):
-    """Declared drift against mirror symmetry, direction and size of space-time correlations."""
+    """Declared drift against mirror symmetry, direction and size of space-time correlations.
+
+    Null hypothesis
+    ---------------
+    Per axis of at least 4 sites: an axis declared symmetric is mirror-symmetric in
+    distribution (every antisymmetric space-time cell has mean 0); an axis declared driven
+    has the declared drift (its short-lag cells have the sign of p - 1/2 and the first
+    moment follows its mass-conservation prediction within ``tolerance``). Statistics and
+    p-values: the module docstring.
+
+    Where
+    -----
+    ``axis``: the failing axis (``site`` in 1D, ``y`` or ``x`` in 2D).
+    """
 
     id = "drift"
     description = "the data agree with the declared drift (direction and size, per axis)"

@@ -67,7 +67,20 @@ _DETERMINISTIC = ("uniform", "condensed")
 
 
 class IndependenceCheck(Check):
-    """Replicas are independent: no shared seeds, repeated stretches or correlations."""
+    """Replicas are independent: no shared seeds, repeated stretches or correlations.
+
+    Null hypothesis
+    ---------------
+    The replicas are independent realisations: no two declare the same seed, none repeats
+    a stretch of another (shifted in time or rolled along the lattice) beyond the matches
+    chance allows, and no pair is correlated beyond chance. Statistics and p-values: the
+    module docstring.
+
+    Where
+    -----
+    ``replica``: the first replica that repeats an earlier one (or the later replica of the
+    most correlated pair); ``snapshot``: its first verified repeat, when there is one.
+    """
 
     id = "independence"
     description = "replicas are independent (no shared seeds, repeated snapshots or correlation)"

@@ -69,7 +69,20 @@ def _label(group: tuple[int, int], top: int) -> str:
 
 
 class StationaryLawCheck(Check):
-    """Exact finite-size occupation law of the ZRP against the stationary window."""
+    """Exact finite-size occupation law of the ZRP against the stationary window.
+
+    Null hypothesis
+    ---------------
+    The time-averaged single-site occupation law over the stationary window (all sites,
+    snapshots and replicas pooled) is the exact canonical law of the declared ZRP,
+    P(m) = f(m) Z(N-1, M-m) / Z(N, M). Statistic: Rao-Scott corrected Pearson X^2, p-value
+    from an F law (the module docstring).
+
+    Where
+    -----
+    ``replica``: a replica that does not keep its total mass in the window (then
+    ``skip``); no location otherwise.
+    """
 
     id = "stationary-law"
     description = "single-site occupation law in the stationary window matches the exact ZRP law"
