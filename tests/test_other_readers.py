@@ -138,7 +138,7 @@ def _corrupt_copy(tmp_path: Path, chain: str | None) -> tuple[Path, Path]:
     return src, run_dir
 
 
-DIGEST = "DATA_LOSS.*(?i:digest mismatch)"
+DIGEST = r"DATA_LOSS.*(?i:digest mismatch)"
 
 
 @pytest.mark.parametrize(
@@ -165,7 +165,7 @@ def test_tensorstore_reports_a_corrupt_chunk(
     )
     with pytest.raises(ValueError, match=error):
         mass[1].read().result()
-    with pytest.raises(ValueError, match="(?i:checksum|corrupt)"):  # zarr-python alone
+    with pytest.raises(ValueError, match=r"(?i:checksum|corrupt)"):  # zarr-python alone
         zarr.open_array(run_dir / "mass", mode="r")[1]
     run = massarc.open_run(run_dir)
     with pytest.raises(ChunkError, match="mass/c/1/0/0"):
