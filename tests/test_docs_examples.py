@@ -30,7 +30,7 @@ def test_the_developer_guide_has_examples() -> None:
     assert len(_examples("DEVELOPERS.md")) >= 2  # a statistic and a check
 
 
-@pytest.mark.parametrize("name", ["DEVELOPERS.md"])
+@pytest.mark.parametrize("name", ["DEVELOPERS.md", "docs/README.md"])
 def test_python_examples_run(name: str) -> None:
     code = "\n\n".join(_examples(name))
     out = subprocess.run(
