@@ -162,9 +162,8 @@ def run_tree(run: Run, *, summaries: bool = True) -> Any:
     xr, _ = _libs()
     attrs = _attrs(run)
     dims = mass_dimensions(len(run.sites))
-    arr = run.mass if run.has_data else None
-    mass_attrs = dict(arr.attrs) if arr is not None else {}
-    data: dict[str, Any] = {"mass": (dims, mass_dask(run), mass_attrs)}
+    arr = run.mass  # an absent or unreadable array raises ArchiveError saying why
+    data: dict[str, Any] = {"mass": (dims, mass_dask(run), dict(arr.attrs))}
     for key in (INFLOW, OUTFLOW):
         series = run.array(key)
         if series is not None and run.has_data:

@@ -211,3 +211,12 @@ def test_report_html_holds_the_facts_and_is_escaped() -> None:
     real = massarc.audit([SAMPLES / "depot-ring-unsettled.zarr"], checks=["steady-state"])
     page = real._repr_html_()  # the mislabelled sample fails steady-state (samples/README.md)
     assert "steady-state" in page and ">fail<" in page
+
+
+def test_a_run_without_its_mass_array_is_refused(tmp_path: Path) -> None:
+    run_dir = tmp_path / "dune.zarr"
+    shutil.copytree(SAMPLES / "dune-strip.zarr", run_dir)
+    shutil.rmtree(run_dir / "mass")
+    run = massarc.open_run(run_dir)
+    with pytest.raises(massarc.ArchiveError, match="no 'mass' array"):
+        run.to_xarray()
