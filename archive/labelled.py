@@ -252,6 +252,7 @@ class Collection(Sequence[Run]):
             stacked = xr.concat(
                 parts,
                 dim="run",
+                data_vars="all",
                 coords="different",
                 compat="equals",
                 join="exact",
