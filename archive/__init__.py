@@ -3,6 +3,7 @@ pass over chunks, and the converters from and to other formats."""
 
 from .bounded import install as _install_bounded_codecs
 from .errors import ArchiveError, DataError, NotARunError
+from .labelled import Collection, open_collection
 from .layout import chunk_snapshots, codecs, mass_dtype
 from .reader import Chunk, ChunkRef, Run, open_run, open_runs
 from .store import open_store
@@ -14,6 +15,7 @@ __all__ = [
     "ArchiveError",
     "Chunk",
     "ChunkRef",
+    "Collection",
     "DataError",
     "NotARunError",
     "Run",
@@ -22,6 +24,7 @@ __all__ = [
     "codecs",
     "create_run",
     "mass_dtype",
+    "open_collection",
     "open_run",
     "open_runs",
     "open_store",

@@ -45,6 +45,7 @@ __all__ = [
     "checked_chunks",
     "missing_chunks",
     "missing_time_chunks",
+    "read_checked",
 ]
 
 
@@ -249,15 +250,23 @@ def checked_chunks(run: Run) -> Iterator[Chunk]:
     reader = ChunkReader(run)
     missing = {} if reader.direct else missing_chunks(run, refs)
     for i, ref in enumerate(refs):
-        where = f"replica {ref.replica}, snapshots {ref.start}..{ref.stop - 1}"
-        if i in missing:
-            key, why = missing[i]
-            raise ChunkError(f"{run.name}: chunk {key} ({where}) is missing: {why}")
-        try:
-            yield reader.read(ref)
-        except MissingChunk as exc:
-            raise ChunkError(f"{run.name}: chunk {ref.key} ({where}) is missing: {exc}") from None
-        except CorruptChunk as exc:
-            raise ChunkError(
-                f"{run.name}: chunk {ref.key} ({where}) is corrupt: {_first_line(exc)}"
-            ) from None
+        yield read_checked(reader, ref, missing.get(i))
+
+
+def read_checked(reader: ChunkReader, ref: ChunkRef, missing: tuple[str, str] | None) -> Chunk:
+    """One chunk read by ``reader``; a missing one (``missing``: its entry of
+    :func:`missing_chunks`, or found absent while reading) or a corrupt one raises
+    :class:`ChunkError` naming the run, the chunk, the replica and the snapshots."""
+    name = reader.run.name
+    where = f"replica {ref.replica}, snapshots {ref.start}..{ref.stop - 1}"
+    if missing is not None:
+        key, why = missing
+        raise ChunkError(f"{name}: chunk {key} ({where}) is missing: {why}")
+    try:
+        return reader.read(ref)
+    except MissingChunk as exc:
+        raise ChunkError(f"{name}: chunk {ref.key} ({where}) is missing: {exc}") from None
+    except CorruptChunk as exc:
+        raise ChunkError(
+            f"{name}: chunk {ref.key} ({where}) is corrupt: {_first_line(exc)}"
+        ) from None

@@ -304,6 +304,20 @@ class Run:
         arr = self._member(MASS)
         return tuple(arr.shape) if isinstance(arr, zarr.Array) else (0, 0)
 
+    def to_xarray(self, *, summaries: bool = True) -> Any:
+        """The run as a lazy, Dask-backed :class:`xarray.DataTree`: ``mass`` with
+        coordinates replica, time, site (or y, x), the metadata as attributes, and the
+        stored summaries as the child ``summaries`` (``summaries=False`` leaves them out).
+        Needs the ``xarray`` extra; see :mod:`massarc.archive.labelled`."""
+        from .labelled import run_tree
+
+        return run_tree(self, summaries=summaries)
+
+    def _repr_html_(self) -> str:
+        from .notebook import run_html
+
+        return run_html(self)
+
     def __repr__(self) -> str:
         fam = self.meta.model.family if self.meta else "?"
         return f"<Run {self.name!r} {fam} shape={self.shape}>"

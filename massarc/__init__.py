@@ -3,6 +3,8 @@
 The public API is small:
 
 * :func:`open_run`, :func:`open_runs` read a run (or a collection) lazily;
+  ``open_run(p).to_xarray()`` gives it as a lazy, Dask-backed xarray tree and
+  :func:`open_collection` a sweep as one :class:`Collection` (the ``xarray`` extra);
 * :func:`create_run`, :func:`resume_run` write one, snapshot by snapshot;
 * :func:`load_metadata`, :func:`parse_metadata` and :class:`RunMeta` describe it;
 * :func:`audit` runs the checks (``massarc check``) and returns an ``AuditReport``;
@@ -30,11 +32,13 @@ from massarc.schema.version import __version__
 if TYPE_CHECKING:
     from massarc.archive import (
         ArchiveError,
+        Collection,
         DataError,
         NotARunError,
         Run,
         RunWriter,
         create_run,
+        open_collection,
         open_run,
         open_runs,
         resume_run,
@@ -45,11 +49,13 @@ if TYPE_CHECKING:
 
 _LAZY = {
     "ArchiveError": "massarc.archive",
+    "Collection": "massarc.archive",
     "DataError": "massarc.archive",
     "NotARunError": "massarc.archive",
     "Run": "massarc.archive",
     "RunWriter": "massarc.archive",
     "create_run": "massarc.archive",
+    "open_collection": "massarc.archive",
     "open_run": "massarc.archive",
     "open_runs": "massarc.archive",
     "resume_run": "massarc.archive",
@@ -63,6 +69,7 @@ _LAZY = {
 
 __all__ = [
     "ArchiveError",
+    "Collection",
     "DataError",
     "MetadataError",
     "NotARunError",
@@ -73,6 +80,7 @@ __all__ = [
     "audit",
     "create_run",
     "load_metadata",
+    "open_collection",
     "open_run",
     "open_runs",
     "parse_metadata",

@@ -51,6 +51,12 @@ class AuditReport(_Frozen):
         """0 when nothing failed, 1 otherwise (the CLI's status for a completed audit)."""
         return 1 if self.failed else 0
 
+    def _repr_html_(self) -> str:
+        """The report as a table in a Jupyter notebook (every datum escaped)."""
+        from .notebook import report_notebook_html
+
+        return report_notebook_html(self)
+
     @staticmethod
     def status_of(results: list[CheckResult]) -> str:
         """The worst status of several results."""
