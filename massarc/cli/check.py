@@ -24,7 +24,15 @@ from massarc.validators import (
 )
 from massarc.validators.report import RENDERINGS, render_table
 
-from ._common import bad_input, command_class, die, progress_bar, rendering_option
+from ._common import (
+    bad_input,
+    command_class,
+    die,
+    progress_bar,
+    rendering_option,
+    scheduler_option,
+    using_scheduler,
+)
 
 __all__ = ["command"]
 
@@ -70,6 +78,7 @@ def _listing() -> str:
 )
 @click.option("--list", "list_", is_flag=True, help="List the registered checks and exit.")
 @click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
+@scheduler_option
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar; table: only non-passing.")
 def command(
     runs: tuple[str, ...],
@@ -82,6 +91,7 @@ def command(
     config: str | None,
     list_: bool,
     workers: int | None,
+    scheduler: str | None,
     quiet: bool,
 ) -> None:
     """Audit runs: metadata, integrity, time order, masses, conservation, and the
@@ -99,7 +109,10 @@ def command(
     with bad_input(_NAME):
         for location in runs:
             opened.extend(open_for_audit(location))
-    with progress_bar("auditing", quiet=quiet) as progress:
+    with (
+        using_scheduler(_NAME, scheduler, quiet=quiet) as dask_scheduler,
+        progress_bar("auditing", quiet=quiet) as progress,
+    ):
         try:
             report = audit(
                 opened,
@@ -110,6 +123,7 @@ def command(
                 progress=progress,
                 workers=workers,
                 config=settings.source,
+                scheduler=dask_scheduler,
             )
         except ConfigError as exc:
             die(_NAME, str(exc))

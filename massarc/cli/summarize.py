@@ -25,7 +25,16 @@ from massarc.summaries import (
     summarize,
 )
 
-from ._common import bad_input, command_class, die, key_values, progress_bar, rendering_option
+from ._common import (
+    bad_input,
+    command_class,
+    die,
+    key_values,
+    progress_bar,
+    rendering_option,
+    scheduler_option,
+    using_scheduler,
+)
 
 __all__ = ["command"]
 
@@ -61,6 +70,7 @@ def _options(sets: tuple[str, ...]) -> SummaryOptions:
 )
 @click.option("--list", "list_", is_flag=True, help="List the summary options and exit.")
 @click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
+@scheduler_option
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar.")
 def command(
     runs: tuple[str, ...],
@@ -70,6 +80,7 @@ def command(
     export: tuple[str, str] | None,
     list_: bool,
     workers: int | None,
+    scheduler: str | None,
     quiet: bool,
 ) -> None:
     """Compute and store the observables of runs: largest mass, occupation law, G(r, t),
@@ -87,8 +98,18 @@ def command(
     with bad_input(_NAME):
         for location in runs:
             opened.extend(open_for_summaries(location))
-        with progress_bar("summarizing", quiet=quiet) as progress:
-            outcomes = summarize(opened, options, force=force, workers=workers, progress=progress)
+        with (
+            using_scheduler(_NAME, scheduler, quiet=quiet) as dask_scheduler,
+            progress_bar("summarizing", quiet=quiet) as progress,
+        ):
+            outcomes = summarize(
+                opened,
+                options,
+                force=force,
+                workers=workers,
+                progress=progress,
+                scheduler=dask_scheduler,
+            )
     if export is not None:
         kind, directory = export
         try:
