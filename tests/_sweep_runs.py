@@ -22,8 +22,17 @@ __all__ = ["POINTS", "write_sweep"]
 POINTS = (("b4-fluid", 4.0, 10), ("b4-condensed", 4.0, 60), ("b1.5-fluid", 1.5, 60))
 
 
-def write_sweep(root: Path, *, sites: int = 40, snapshots: int = 240, chunk: int = 50) -> Path:
-    """Write the collection ``root`` (a directory of runs) and return it."""
+def write_sweep(
+    root: Path,
+    *,
+    sites: int = 40,
+    snapshots: int = 240,
+    chunk: int = 50,
+    unconserved: str | None = None,
+) -> Path:
+    """Write the collection ``root`` (a directory of runs) and return it. The run named
+    ``unconserved`` gets one extra unit at site 3 of snapshot 100 of replica 1 (a planted
+    fault: its mass is not conserved)."""
     root.mkdir(parents=True)
     times = np.arange(snapshots, dtype=np.float64)
     for k, (name, b, mass) in enumerate(POINTS):
@@ -34,8 +43,10 @@ def write_sweep(root: Path, *, sites: int = 40, snapshots: int = 240, chunk: int
                 "run": {"regime": "stationary", "total_mass": mass},
             }
         )
-        data = simulate(meta, times, replicas=4, seed=100 + k, mass=mass, exact=True)
+        data = np.asarray(simulate(meta, times, replicas=4, seed=100 + k, mass=mass, exact=True))
+        if name == unconserved:
+            data[1, 100, 3] += 1
         writer = create_run(root / f"{name}.zarr", meta, snapshots_hint=chunk)
-        writer.append(times, np.asarray(data))
+        writer.append(times, data)
         writer.close()
     return root

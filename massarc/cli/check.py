@@ -57,7 +57,8 @@ def _listing() -> str:
 @rendering_option(
     RENDERINGS,
     "How to render the report. table: for people; json: for scripts; junit: JUnit XML for "
-    "CI systems.",
+    "CI systems; csv: the sweep table, one row per run (parameters, condensed, stationary, "
+    "valid).",
 )
 @click.option("--output", "-o", type=click.Path(dir_okay=False), help="Write the report here.")
 @click.option("--strict/--no-strict", default=None, help="Warnings count as failures.")

@@ -50,7 +50,11 @@ def _options(sets: tuple[str, ...]) -> SummaryOptions:
 
 @click.command(_NAME, cls=command_class(_NAME))
 @click.argument("runs", nargs=-1, metavar="RUN_OR_COLLECTION...")
-@rendering_option(RENDERINGS, "How to print. table: one row per run; json: for scripts.")
+@rendering_option(
+    RENDERINGS,
+    "How to print. table: one row per run; json: for scripts; csv: the table's rows "
+    "(parameters, condensed, stationary, findings).",
+)
 @click.option(
     "--force", is_flag=True, help="Recompute even when the stored summaries are up to date."
 )

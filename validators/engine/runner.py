@@ -29,6 +29,7 @@ from massarc.archive.progress import Progress
 from massarc.archive.scan import ScanResult, Statistic, scan
 from massarc.archive.store import location_name
 from massarc.schema.spec import ARCHIVE_MAJOR, ATTRIBUTE_KEY, parse_version
+from massarc.schema.sweep import sweep_point
 from massarc.schema.version import __version__
 
 from ..report.model import AuditReport, RunReport
@@ -289,6 +290,7 @@ def audit(
             chunks=len(run.chunk_refs()),
             chunks_read=res.chunks_read if res else 0,
             bytes_decoded=res.bytes_decoded if res else 0,
+            point=sweep_point(run.meta) if run.meta is not None else None,
         )
 
     reports = over_runs(opened, one, progress, parallel=scheduler is not None)
