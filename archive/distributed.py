@@ -3,7 +3,7 @@
 :func:`massarc.archive.scan.scan` dispatches here when it is given a ``scheduler``; on one
 machine without one it keeps its own thread pool, the fastest local path.
 
-The graph has one task per batch of neighbouring chunks (same replica, consecutive in
+The graph has one task per run of neighbouring chunks (same replica, consecutive in
 time). A task reads its chunks through :class:`~massarc.archive._chunk_read.ChunkReader`,
 so the trust layer holds inside the workers as it does locally: chunk files are opened as
 regular files of capped size, checksums are verified, Blosc headers must announce the
@@ -50,9 +50,11 @@ __all__ = [
     "Scheduler",
     "SchedulerError",
     "connect",
+    "outcomes",
     "over_runs",
     "scheduler_choice",
     "shown_address",
+    "split_tasks",
 ]
 
 T = TypeVar("T")
@@ -185,12 +187,12 @@ def _as_scheduler(scheduler: Scheduler | str) -> Scheduler:
 # -- the graph -----------------------------------------------------------------------------
 
 
-def batches(refs: list[ChunkRef], skip: Mapping[int, Any], tasks: int) -> list[list[int]]:
-    """Positions of the chunks to read, cut into about ``tasks`` batches of neighbouring
+def split_tasks(refs: list[ChunkRef], skip: Mapping[int, Any], tasks: int) -> list[list[int]]:
+    """Positions of the chunks to read, cut into about ``tasks`` tasks of neighbouring
     chunks of one replica (``skip``: positions not to read).
 
     >>> refs = [ChunkRef(r, s, s + 2, "") for r in range(2) for s in (0, 2, 4)]
-    >>> batches(refs, {}, 4)
+    >>> split_tasks(refs, {}, 4)
     [[0, 1], [2], [3, 4], [5]]
     """
     wanted = [i for i in range(len(refs)) if i not in skip]
@@ -204,14 +206,19 @@ def batches(refs: list[ChunkRef], skip: Mapping[int, Any], tasks: int) -> list[l
     return out
 
 
-def _reduce_batch(payload: tuple[Run, list[Any], dict[int, str], bool, bool], batch: list[int]):
-    """The task: read the chunks at ``batch`` and reduce them with every statistic."""
+#: What every task of one pass shares: the run, its statistics, those already broken, whether
+#: edge snapshots are needed, and whether the direct reader may be used.
+_Payload = tuple[Run, list[Any], dict[int, str], bool, bool]
+
+
+def _reduce_chunks(payload: _Payload, positions: list[int]) -> list[Any]:
+    """The task: read the chunks at ``positions`` and reduce them with every statistic."""
     from .scan import _work
 
     run, stats, broken, edges, direct = payload
     reader = ChunkReader(run, direct=direct)
     refs = run.chunk_refs()
-    return [_work(reader, i, refs[i], stats, broken, edges) for i in batch]
+    return [_work(reader, i, refs[i], stats, broken, edges) for i in positions]
 
 
 def _label(run: Run) -> str:
@@ -231,11 +238,11 @@ def outcomes(
     direct: bool,
     tick: Callable[[int], None],
 ) -> Iterator[Any]:
-    """The per-chunk outcomes of the pass over ``run`` computed on ``scheduler``, batch by
-    batch as they complete (``tick(n)`` after each batch of ``n`` chunks)."""
+    """The per-chunk outcomes of the pass over ``run`` computed on ``scheduler``, task by
+    task as they complete (``tick(n)`` after each task of ``n`` chunks)."""
     sched = _as_scheduler(scheduler)
     refs = run.chunk_refs()
-    plan = batches(refs, skip, _TASKS_PER_THREAD * sched.threads())
+    plan = split_tasks(refs, skip, _TASKS_PER_THREAD * sched.threads())
     payload = (run, stats, dict(broken), edges, direct)
     label = f"{_label(run)}-{time.monotonic_ns():x}"
     if sched.client is None:
@@ -246,7 +253,7 @@ def outcomes(
     client = sched.client
     [shared] = client.scatter([payload], hash=False)
     futures = [
-        client.submit(_reduce_batch, shared, b, key=f"{label}-{k}", pure=False)
+        client.submit(_reduce_chunks, shared, b, key=f"{label}-{k}", pure=False)
         for k, b in enumerate(plan)
     ]
     try:
@@ -267,7 +274,7 @@ def _local(
 
     shared = dask.delayed(payload, traverse=False, name=f"{label}-run")
     tasks = [
-        dask.delayed(_reduce_batch, pure=True)(shared, b, dask_key_name=f"{label}-{k}")
+        dask.delayed(_reduce_chunks, pure=True)(shared, b, dask_key_name=f"{label}-{k}")
         for k, b in enumerate(plan)
     ]
     sizes = {f"{label}-{k}": len(b) for k, b in enumerate(plan)}
