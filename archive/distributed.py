@@ -55,6 +55,7 @@ __all__ = [
     "scheduler_choice",
     "shown_address",
     "split_tasks",
+    "task_group",
 ]
 
 T = TypeVar("T")
@@ -221,10 +222,18 @@ def _reduce_chunks(payload: _Payload, positions: list[int]) -> list[Any]:
     return [_work(reader, i, refs[i], stats, broken, edges) for i in positions]
 
 
-def _label(run: Run) -> str:
-    """A task-group name for the run (Dask groups tasks by the key's prefix)."""
+def task_group(run: Run) -> str:
+    """The name of the run's task group. Dask groups tasks by the start of their keys: the
+    first ``-``-separated word whole, later words only when purely alphabetic, so the run
+    goes into the first word.
+
+    >>> from dask.utils import key_split
+    >>> run = Run(group=None, name="sweep/b4-condensed.zarr", header=None)
+    >>> task_group(run), key_split(f"{task_group(run)}-1a59cb3be209-5")
+    ('massarc_b4_condensed_zarr', 'massarc_b4_condensed_zarr')
+    """
     stem = re.sub(r"[^A-Za-z0-9]+", "_", os.path.basename(run.name.rstrip("/")))
-    return f"massarc-pass-{stem or 'run'}"
+    return f"massarc_{stem.strip('_') or 'run'}"
 
 
 def outcomes(
@@ -244,7 +253,7 @@ def outcomes(
     refs = run.chunk_refs()
     plan = split_tasks(refs, skip, _TASKS_PER_THREAD * sched.threads())
     payload = (run, stats, dict(broken), edges, direct)
-    label = f"{_label(run)}-{time.monotonic_ns():x}"
+    label = f"{task_group(run)}-{time.monotonic_ns():x}"
     if sched.client is None:
         yield from _local(sched.name, payload, plan, label, tick)
         return

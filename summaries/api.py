@@ -129,7 +129,8 @@ def summarize(
     scheduler
         A Dask scheduler (:class:`~massarc.archive.distributed.Scheduler` or its name):
         each run's pass runs there as a graph, the runs in parallel (default: the local
-        pass, one run after the other). Same results.
+        pass, one run after the other). Same results; a damaged chunk then stops the
+        command after the runs in flight beside it are stored, not only those before it.
 
     Raises :class:`~massarc.archive.ArchiveError` (a run being written, not a run, a
     damaged chunk) or :class:`ValueError` (an unknown or invalid option) before anything
