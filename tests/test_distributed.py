@@ -179,3 +179,39 @@ def test_cli_refuses_a_malformed_scheduler_in_one_line(sweep):
     assert out.exit_code == 2
     lines = out.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("massarc check: error: --scheduler")
+
+
+def test_runs_in_parallel_are_in_flight_together():
+    import threading
+
+    runs = open_runs(SAMPLES / "dune-strip.zarr") + open_runs(SAMPLES / "depot-ring.zarr")
+    meet = threading.Barrier(len(runs), timeout=20)  # breaks unless both runs wait at once
+
+    def work(run, tick):
+        meet.wait()
+        return run.name
+
+    assert over_runs(runs, work, None, parallel=True) == [r.name for r in runs]
+
+
+def test_damaged_and_missing_chunks_give_the_same_report_on_a_dask_scheduler(tmp_path):
+    from _audit_runs import chunk_file
+
+    root = write_sweep(tmp_path / "sweep")
+    damaged = chunk_file(root / "b4-fluid.zarr", 2, 1)
+    raw = bytearray(damaged.read_bytes())
+    raw[len(raw) // 2] ^= 0xFF  # the checksum no longer matches
+    damaged.write_bytes(bytes(raw))
+    chunk_file(root / "b4-condensed.zarr", 0, 3).unlink()
+    local = _invoke("check", str(root), "--as", "json", "--quiet")
+    graph = _invoke("check", str(root), "--as", "json", "--quiet", "--scheduler", "threads")
+    assert local.exit_code == graph.exit_code == 1
+    mine, theirs = json.loads(local.stdout), json.loads(graph.stdout)
+    assert _without_timing(theirs) == _without_timing(mine)
+    integrity = {
+        Path(r["path"]).name: next(c for c in r["checks"] if c["id"] == "integrity")
+        for r in mine["runs"]
+    }
+    assert integrity["b4-fluid.zarr"]["status"] == "fail"
+    assert integrity["b4-fluid.zarr"]["where"]["replica"] == 2
+    assert integrity["b4-condensed.zarr"]["status"] == "fail"
