@@ -336,6 +336,7 @@ def scan(
     workers: int | None = None,
     in_flight: int | None = None,
     direct: bool = True,
+    scheduler: Any = None,
 ) -> ScanResult[K]:
     """Read every committed chunk of ``run`` once and feed it to every statistic.
 
@@ -347,7 +348,9 @@ def scan(
     :class:`ChunkFault`; the pass goes on without it. ``workers`` threads decode and
     reduce chunks (default :func:`default_workers`); at most ``in_flight`` chunks (default
     twice the workers) are decoded or waiting at any time. ``direct=False`` decodes every
-    chunk through zarr-python (see :mod:`massarc.archive._chunk_read`).
+    chunk through zarr-python (see :mod:`massarc.archive._chunk_read`). ``scheduler``
+    (a :class:`~massarc.archive.distributed.Scheduler` or its name) runs the pass as a Dask
+    graph there instead (see :mod:`massarc.archive.distributed`): same results.
 
     >>> from massarc.archive import open_run
     >>> from massarc.archive.stats import SnapshotStatistic
@@ -375,11 +378,24 @@ def scan(
     pending: set[Future[_ChunkOutcome]] = set()
     order = iter(range(len(refs)))
 
-    def tick() -> None:
+    def tick(n: int = 1) -> None:
         nonlocal done_count
-        done_count += 1
+        done_count += n
         if progress:
             progress(done_count, len(refs), "chunks")
+
+    if scheduler is not None:  # the pass as a Dask graph; the pool below gets no chunk
+        from .distributed import outcomes
+
+        for i, (key, why) in sorted(missing.items()):
+            state.resolve(_ChunkOutcome(i, fault=ChunkFault(refs[i], "missing", why, key)))
+            tick()
+        graph = outcomes(
+            scheduler, run, stats, state.broken, missing, edges=edges, direct=direct, tick=tick
+        )
+        for done in graph:
+            state.resolve(done)
+        order = iter(())
 
     pool = ThreadPoolExecutor(max_workers=n_workers, thread_name_prefix="massarc-scan")
     try:

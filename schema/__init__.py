@@ -34,6 +34,7 @@ if TYPE_CHECKING:
         ZRPModel,
     )
     from .spec import ARCHIVE_VERSION, ATTRIBUTE_KEY, RUN_KIND, mass_dimensions
+    from .sweep import SweepPoint, sweep_point
 
 #: public name -> module of this package that defines it
 _HOME = {
@@ -63,6 +64,8 @@ _HOME = {
     "Simulator": "models",
     "ZRPModel": "models",
     "json_schema": "jsonschema",
+    "SweepPoint": "sweep",
+    "sweep_point": "sweep",
 }
 
 __all__ = [
@@ -81,6 +84,7 @@ __all__ = [
     "RunInfo",
     "RunMeta",
     "Simulator",
+    "SweepPoint",
     "WriteState",
     "ZRPModel",
     "apply_overrides",
@@ -91,6 +95,7 @@ __all__ = [
     "parse_header",
     "parse_metadata",
     "read_metadata_file",
+    "sweep_point",
     "validation_problems",
 ]
 

@@ -15,6 +15,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from massarc.archive import ArchiveError, Run, open_runs
+from massarc.archive.distributed import over_runs
 from massarc.archive.progress import Progress
 from massarc.archive.summaries import Summaries, plain, write_summaries
 
@@ -83,6 +84,7 @@ def summarize_run(
     force: bool = False,
     workers: int | None = None,
     progress: Progress | None = None,
+    scheduler: Any = None,
 ) -> SummaryOutcome:
     """Compute and store the summaries of one run (see :func:`summarize`)."""
     started = time.perf_counter()
@@ -92,7 +94,7 @@ def summarize_run(
     if not force and _up_to_date(run, stored, opts):
         assert stored is not None
         return SummaryOutcome(run, stored, False, time.perf_counter() - started)
-    col = single_pass(run, opts, workers=workers, progress=progress)
+    col = single_pass(run, opts, workers=workers, progress=progress, scheduler=scheduler)
     window = choose_window(run, col.snapshots, opts.window)
     arrays, attrs = build_summaries(run, opts, col, window)
     write_summaries(run, arrays, attrs)
@@ -108,6 +110,7 @@ def summarize(
     force: bool = False,
     workers: int | None = None,
     progress: Progress | None = None,
+    scheduler: Any = None,
 ) -> list[SummaryOutcome]:
     """Compute and store the summaries of runs and collections; one outcome per run.
 
@@ -123,6 +126,11 @@ def summarize(
         Threads of the single pass (default: the CPUs available).
     progress
         ``progress(done, total, "chunks")`` over the chunks of all runs.
+    scheduler
+        A Dask scheduler (:class:`~massarc.archive.distributed.Scheduler` or its name):
+        each run's pass runs there as a graph, the runs in parallel (default: the local
+        pass, one run after the other). Same results; a damaged chunk then stops the
+        command after the runs in flight beside it are stored, not only those before it.
 
     Raises :class:`~massarc.archive.ArchiveError` (a run being written, not a run, a
     damaged chunk) or :class:`ValueError` (an unknown or invalid option) before anything
@@ -149,15 +157,11 @@ def summarize(
             opened.append(item)
         else:
             opened.extend(open_for_summaries(item))
-    totals = [len(r.chunk_refs()) for r in opened]
-    grand, offset = sum(totals), 0
-    outcomes = []
-    for run, n_chunks in zip(opened, totals, strict=True):
 
-        def tick(done: int, _total: int | None, unit: str, base: int = offset) -> None:
-            if progress is not None:
-                progress(base + done, grand, unit)
+    def one(run: Run, tick: Progress) -> SummaryOutcome:
+        return summarize_run(
+            run, opts, force=force, workers=workers, progress=tick, scheduler=scheduler
+        )
 
-        outcomes.append(summarize_run(run, opts, force=force, workers=workers, progress=tick))
-        offset += n_chunks
+    outcomes = over_runs(opened, one, progress, parallel=scheduler is not None)
     return outcomes

@@ -25,6 +25,7 @@ from massarc.archive import Run
 from massarc.archive.summaries import StoredArray
 from massarc.schema.laws import dynamic_exponent, relaxation_time
 from massarc.schema.spec import ARCHIVE_VERSION, SUMMARY_ARRAYS
+from massarc.schema.sweep import sweep_point
 from massarc.schema.version import __version__
 
 from .collect import Collected
@@ -52,25 +53,10 @@ def first_zero(g: np.ndarray) -> np.ndarray:
 
 
 def model_line(run: Run) -> dict[str, Any]:
-    """Family, its main parameter, sites and density: the columns of a sweep table."""
-    meta = run.meta
-    model = meta.model
-    if model.family == "zrp":
-        param = f"b={model.b:g}" if model.b is not None else (
-            f"rate={model.rate:g}" if model.rate is not None else "rates"
-        )  # fmt: skip
-    elif model.family == "cmam":
-        param = f"w={model.chipping:g}" + (
-            f",D={model.diffusion:g}" if model.diffusion != 1 else ""
-        )
-    else:
-        param = ""
-    rho = meta.run.density
-    if rho is None and meta.run.total_mass is not None:
-        rho = meta.run.total_mass / meta.lattice.volume
-    drift = getattr(model, "drift", None)
-    return {"family": model.family, "drift": drift, "parameter": param,
-            "sites": list(meta.lattice.sites), "density": rho}  # fmt: skip
+    """Family, its main parameter, sites and density: the columns of a sweep table (see
+    :func:`massarc.schema.sweep_point`)."""
+    point = sweep_point(run.meta)
+    return point.model_dump(include={"family", "drift", "parameter", "sites", "density"})
 
 
 def _occupation(col: Collected, start: int) -> tuple[np.ndarray, int]:

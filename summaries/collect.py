@@ -69,6 +69,7 @@ def single_pass(
     *,
     workers: int | None = None,
     progress: Progress | None = None,
+    scheduler: Any = None,
 ) -> Collected:
     """One read of every chunk feeding the four statistics the summaries need."""
     meta = run.meta
@@ -87,7 +88,7 @@ def single_pass(
         "correlation": {"at": probes},
     }
     stats = {name: get_statistic(name)(run, **opts) for name, opts in wanted.items()}
-    res = scan(run, stats, workers=workers, progress=progress)
+    res = scan(run, stats, workers=workers, progress=progress, scheduler=scheduler)
     if res.faults:
         f = res.faults[0]
         raise ArchiveError(

@@ -1,6 +1,8 @@
 """Print and export summaries: one table across a sweep, JSON, and files for other tools.
 
-The table has one row per run with the model (family, b or w, L, density), the window, the
+The table has one row per run with the model (family, b or w, L, density), the critical
+density and theory's verdict on condensation (:func:`massarc.schema.sweep_point`), whether
+a stationary window was found, the window, the
 condensate fraction measured against 1 - rho_c / rho, and the growth exponents of the
 typical mass, the largest mass and the coarsening length next to the expected 1/z (a
 ``?`` marks a fitting range too short to mean anything; a run started in the steady state
@@ -26,19 +28,24 @@ from typing import IO, Any
 import numpy as np
 
 from massarc.archive.summaries import plain
+from massarc.schema.sweep import sweep_point, write_rows
 
 from .api import SummaryOutcome
 
 __all__ = ["RENDERINGS", "export_summaries", "render_summaries", "sweep_table"]
 
 #: How ``massarc summarize`` prints (``--as``).
-RENDERINGS = ("table", "json")
+RENDERINGS = ("table", "json", "csv")
 
 
 def _num(value: Any, digits: int = 3) -> str:
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return "-"
     return f"{value:.{digits}g}"
+
+
+def _yes_no(value: bool | None) -> str:
+    return "-" if value is None else ("yes" if value else "no")
 
 
 def _exponent(fit: dict[str, Any]) -> str:
@@ -58,6 +65,7 @@ def sweep_table(outcomes: Sequence[SummaryOutcome]) -> list[dict[str, Any]]:
         model, cond, window = f.get("model", {}), f.get("condensate", {}), f.get("window", {})
         expo, ext = f.get("exponents", {}), f.get("extremes", {})
         best = ext.get("best")
+        point = sweep_point(out.run.meta)
         rows.append({
             "run": out.run.name,
             "family": model.get("family"),
@@ -65,6 +73,10 @@ def sweep_table(outcomes: Sequence[SummaryOutcome]) -> list[dict[str, Any]]:
             "parameter": model.get("parameter"),
             "sites": "x".join(str(s) for s in model.get("sites", [])),
             "density": model.get("density"),
+            "critical_density": point.critical_density,
+            "condensed": point.condensed,
+            "stationary": window.get("stationary_found"),
+            "window_start": window.get("start"),
             "replicas": f.get("extent", {}).get("replicas"),
             "snapshots": f.get("extent", {}).get("snapshots"),
             "window": f"{window.get('rule')} from {window.get('start')}",
@@ -94,8 +106,9 @@ def _table(outcomes: Sequence[SummaryOutcome], file: IO[str]) -> None:
 
     console = Console(file=file, width=None if file.isatty() else 200, soft_wrap=False)
     table = Table(box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False)
-    heads = ["run", "model", "L", "rho", "window", "cond. frac", "expected", "m_typ ~ t^a",
-             "m_max ~ t^a", "l ~ t^a", "1/z", "extremes (p)"]  # fmt: skip
+    heads = ["run", "model", "L", "rho", "rho_c", "condensed", "stationary", "window",
+             "cond. frac", "expected", "m_typ ~ t^a", "m_max ~ t^a", "l ~ t^a", "1/z",
+             "extremes (p)"]  # fmt: skip
     for h in heads:
         table.add_column(h, overflow="fold")
     for out, row in zip(outcomes, sweep_table(outcomes), strict=True):
@@ -106,7 +119,8 @@ def _table(outcomes: Sequence[SummaryOutcome], file: IO[str]) -> None:
             law += f" ({row['extreme_p_value']:.2g})"
         table.add_row(
             row["run"], f"{row['family']}{drift} {row['parameter']}", row["sites"],
-            _num(row["density"]), row["window"], _num(row["condensate_fraction"]),
+            _num(row["density"]), _num(row["critical_density"]), _yes_no(row["condensed"]),
+            _yes_no(row["stationary"]), row["window"], _num(row["condensate_fraction"]),
             _num(row["expected_fraction"]), _exponent(expo.get("typical_mass", {})),
             _exponent(expo.get("largest_mass", {})), _exponent(expo.get("coarsening_length", {})),
             _num(row["expected_exponent"]), law,
@@ -121,9 +135,13 @@ def _table(outcomes: Sequence[SummaryOutcome], file: IO[str]) -> None:
 
 
 def render_summaries(outcomes: Sequence[SummaryOutcome], rendering: str, file: IO[str]) -> None:
-    """Write the table (``table``) or every run's findings and table row (``json``)."""
+    """Write the table (``table``), every run's findings and table row (``json``), or the
+    table's rows as CSV (``csv``)."""
     if rendering == "table":
         _table(outcomes, file)
+        return
+    if rendering == "csv":
+        write_rows(sweep_table(outcomes), file)
         return
     if rendering != "json":
         raise ValueError(f"rendering: expected one of {', '.join(RENDERINGS)}; got {rendering!r}")
@@ -197,8 +215,6 @@ def export_summaries(outcomes: Sequence[SummaryOutcome], kind: str, directory: P
         rows = sweep_table(outcomes)
         path = directory / "runs.csv"
         with path.open("w", newline="", encoding="utf-8") as fh:
-            w = csv.DictWriter(fh, fieldnames=list(rows[0]) if rows else ["run"])
-            w.writeheader()
-            w.writerows(plain(rows))
+            write_rows(plain(rows), fh)
         written.append(path)
     return written

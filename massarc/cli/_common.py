@@ -24,6 +24,8 @@ __all__ = [
     "metadata_options",
     "progress_bar",
     "rendering_option",
+    "scheduler_option",
+    "using_scheduler",
 ]
 
 EXIT_BAD_INPUT = 2
@@ -147,3 +149,42 @@ def rendering_option(renderings: tuple[str, ...], help_text: str) -> Callable[[_
         show_default=True,
         help=help_text,
     )
+
+
+def scheduler_option(func: _F) -> _F:
+    """The ``--scheduler`` option of the commands that make a single pass (``check``,
+    ``summarize``); the command receives it as ``scheduler``."""
+    return click.option(
+        "--scheduler",
+        "scheduler",
+        metavar="ADDRESS",
+        help="Run the single pass as a Dask graph: on a running dask.distributed scheduler "
+        "(tcp://host:8786), or threads, processes, synchronous (Dask's local schedulers). "
+        "Default: $MASSARC_SCHEDULER, else massarc's own threads, the fastest on one machine.",
+    )(func)
+
+
+@contextmanager
+def using_scheduler(command: str, option: str | None, *, quiet: bool = False) -> Iterator[Any]:
+    """The Dask scheduler ``--scheduler`` (or ``MASSARC_SCHEDULER``) asks for, connected
+    (:class:`massarc.archive.distributed.Scheduler`), or None for the local pass. Says on
+    stderr where the pass runs, with the dashboard link, unless ``quiet``; the scheduler
+    address is shown as scheme and host only. Exits with status 2 when it cannot be used."""
+    from massarc.archive.distributed import SchedulerError, connect, scheduler_choice
+
+    name = scheduler_choice(option)
+    if name is None:
+        yield None
+        return
+    try:
+        scheduler = connect(name)
+    except SchedulerError as exc:
+        die(command, str(exc))
+    if not quiet:
+        board = scheduler.dashboard
+        where = f"; dashboard {board}" if board else ""
+        click.echo(f"massarc {command}: single pass on Dask ({scheduler.shown}){where}", err=True)
+    try:
+        yield scheduler
+    finally:
+        scheduler.close()

@@ -25,7 +25,15 @@ from massarc.validators import (
 )
 from massarc.validators.report import RENDERINGS, render_table
 
-from ._common import bad_input, command_class, die, progress_bar, rendering_option
+from ._common import (
+    bad_input,
+    command_class,
+    die,
+    progress_bar,
+    rendering_option,
+    scheduler_option,
+    using_scheduler,
+)
 
 __all__ = ["command"]
 
@@ -50,7 +58,8 @@ def _listing() -> str:
 @rendering_option(
     RENDERINGS,
     "How to render the report. table: for people; json: for scripts; junit: JUnit XML for "
-    "CI systems.",
+    "CI systems; csv: the sweep table, one row per run (parameters, condensed, stationary, "
+    "valid).",
 )
 @click.option("--output", "-o", type=click.Path(dir_okay=False), help="Write the report here.")
 @click.option("--strict/--no-strict", default=None, help="Warnings count as failures.")
@@ -78,6 +87,7 @@ def _listing() -> str:
     "is not an error.",
 )
 @click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
+@scheduler_option
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar; table: only non-passing.")
 def command(
     runs: tuple[str, ...],
@@ -91,6 +101,7 @@ def command(
     list_: bool,
     from_files: bool,
     workers: int | None,
+    scheduler: str | None,
     quiet: bool,
 ) -> None:
     """Audit runs: metadata, integrity, time order, masses, conservation, and the
@@ -114,7 +125,10 @@ def command(
     with bad_input(_NAME):
         for location in runs:
             opened.extend(open_for_audit(location))
-    with progress_bar("auditing", quiet=quiet) as progress:
+    with (
+        using_scheduler(_NAME, scheduler, quiet=quiet) as dask_scheduler,
+        progress_bar("auditing", quiet=quiet) as progress,
+    ):
         try:
             report = audit(
                 opened,
@@ -125,6 +139,7 @@ def command(
                 progress=progress,
                 workers=workers,
                 config=settings.source,
+                scheduler=dask_scheduler,
             )
         except ConfigError as exc:
             die(_NAME, str(exc))

@@ -25,7 +25,16 @@ from massarc.summaries import (
     summarize,
 )
 
-from ._common import bad_input, command_class, die, key_values, progress_bar, rendering_option
+from ._common import (
+    bad_input,
+    command_class,
+    die,
+    key_values,
+    progress_bar,
+    rendering_option,
+    scheduler_option,
+    using_scheduler,
+)
 
 __all__ = ["command"]
 
@@ -41,7 +50,11 @@ def _options(sets: tuple[str, ...]) -> SummaryOptions:
 
 @click.command(_NAME, cls=command_class(_NAME))
 @click.argument("runs", nargs=-1, metavar="RUN_OR_COLLECTION...")
-@rendering_option(RENDERINGS, "How to print. table: one row per run; json: for scripts.")
+@rendering_option(
+    RENDERINGS,
+    "How to print. table: one row per run; json: for scripts; csv: the table's rows "
+    "(parameters, condensed, stationary, findings).",
+)
 @click.option(
     "--force", is_flag=True, help="Recompute even when the stored summaries are up to date."
 )
@@ -61,6 +74,7 @@ def _options(sets: tuple[str, ...]) -> SummaryOptions:
 )
 @click.option("--list", "list_", is_flag=True, help="List the summary options and exit.")
 @click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
+@scheduler_option
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar.")
 def command(
     runs: tuple[str, ...],
@@ -70,6 +84,7 @@ def command(
     export: tuple[str, str] | None,
     list_: bool,
     workers: int | None,
+    scheduler: str | None,
     quiet: bool,
 ) -> None:
     """Compute and store the observables of runs: largest mass, occupation law, G(r, t),
@@ -87,8 +102,18 @@ def command(
     with bad_input(_NAME):
         for location in runs:
             opened.extend(open_for_summaries(location))
-        with progress_bar("summarizing", quiet=quiet) as progress:
-            outcomes = summarize(opened, options, force=force, workers=workers, progress=progress)
+        with (
+            using_scheduler(_NAME, scheduler, quiet=quiet) as dask_scheduler,
+            progress_bar("summarizing", quiet=quiet) as progress,
+        ):
+            outcomes = summarize(
+                opened,
+                options,
+                force=force,
+                workers=workers,
+                progress=progress,
+                scheduler=dask_scheduler,
+            )
     if export is not None:
         kind, directory = export
         try:

@@ -24,10 +24,12 @@ from collections.abc import Iterable, Mapping
 from typing import Any, NamedTuple
 
 from massarc.archive import ArchiveError, Run, open_runs
+from massarc.archive.distributed import over_runs
 from massarc.archive.progress import Progress
 from massarc.archive.scan import ScanResult, Statistic, scan
 from massarc.archive.store import location_name
 from massarc.schema.spec import ARCHIVE_MAJOR, ATTRIBUTE_KEY, parse_version
+from massarc.schema.sweep import sweep_point
 from massarc.schema.version import __version__
 
 from ..report.model import AuditReport, RunReport
@@ -191,13 +193,19 @@ class _RunAudit:
         return out
 
     def execute(
-        self, strict: bool, workers: int | None, progress: Progress | None
+        self, strict: bool, workers: int | None, progress: Progress | None, scheduler: Any = None
     ) -> tuple[list[CheckResult], ScanResult[StatisticKey] | None]:
         runnable = self.plan()
         res = None
         if self.statistics:
             try:
-                res = scan(self.run, self.statistics, progress=progress, workers=workers)
+                res = scan(
+                    self.run,
+                    self.statistics,
+                    progress=progress,
+                    workers=workers,
+                    scheduler=scheduler,
+                )
             except Exception as exc:  # the machine, not the data: a missing library, a lost disk
                 why = f"the pass over the chunks stopped: {_one_line(exc)}"
                 self.unavailable.update({key: why for key in self.statistics})
@@ -223,6 +231,7 @@ def audit(
     progress: Progress | None = None,
     workers: int | None = None,
     config: str | None = None,
+    scheduler: Any = None,
 ) -> AuditReport:
     """Audit runs (``Run`` objects or locations of runs and collections).
 
@@ -242,6 +251,10 @@ def audit(
         Threads of the single pass (default: the CPUs available).
     config
         The configuration file the settings came from (recorded in the report).
+    scheduler
+        A Dask scheduler (:class:`~massarc.archive.distributed.Scheduler` or its name):
+        each run's pass runs there as a graph, the runs in parallel (default: the local
+        pass, one run after the other). Same results.
 
     Raises :class:`~massarc.archive.ArchiveError` for a location that is not a readable
     run, and :class:`~massarc.validators.engine.settings.ConfigError` for unknown ids or
@@ -256,19 +269,11 @@ def audit(
     opened: list[Run] = []
     for item in runs:
         opened.extend([item] if isinstance(item, Run) else open_for_audit(item))
-    totals = [len(r.chunk_refs()) for r in opened]
-    grand = sum(totals)
-    offset = 0
-    reports = []
-    for run, n_chunks in zip(opened, totals, strict=True):
+
+    def one(run: Run, tick: Progress) -> RunReport:
         run_started = time.perf_counter()
-
-        def tick(done: int, _total: int | None, _unit: str, base: int = offset) -> None:
-            if progress is not None:
-                progress(base + done, grand, "chunks")
-
         worker = _RunAudit(run, classes, merged)
-        ran, res = worker.execute(strict, workers, tick)
+        ran, res = worker.execute(strict, workers, tick, scheduler)
         by_id = {r.id: r for r in ran}
         results = [
             by_id[cid]
@@ -276,21 +281,19 @@ def audit(
             else registry[cid]().result("skip", "not run: skipped by configuration")
             for cid in chosen
         ]
-        offset += n_chunks
-        if progress is not None:
-            progress(offset, grand, "chunks")
-        reports.append(
-            RunReport(
-                path=run.name,
-                status=worst([r.status for r in results]),
-                checks=results,
-                seconds=time.perf_counter() - run_started,
-                check_seconds=worker.seconds,
-                chunks=n_chunks,
-                chunks_read=res.chunks_read if res else 0,
-                bytes_decoded=res.bytes_decoded if res else 0,
-            )
+        return RunReport(
+            path=run.name,
+            status=worst([r.status for r in results]),
+            checks=results,
+            seconds=time.perf_counter() - run_started,
+            check_seconds=worker.seconds,
+            chunks=len(run.chunk_refs()),
+            chunks_read=res.chunks_read if res else 0,
+            bytes_decoded=res.bytes_decoded if res else 0,
+            point=sweep_point(run.meta) if run.meta is not None else None,
         )
+
+    reports = over_runs(opened, one, progress, parallel=scheduler is not None)
     return AuditReport(
         runs=reports,
         status=worst([r.status for r in reports]),

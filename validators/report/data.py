@@ -6,7 +6,12 @@ Shape (stable; outside tools rely on it)::
                "checks": [{"id": "conservation", "status": "fail", "message": "...",
                            "where": {"replica": 2, "snapshot": 1234},
                            "values": {...}, "thresholds": {...}}]}],
-     "status": "fail", "strict": false, "massarc_version": "...", ...}
+     "status": "fail", "strict": false, "massarc_version": "...", ...,
+     "sweep": [{"run": "...", "family": "zrp", "parameter": "b=4", "density": 0.75,
+                "critical_density": 0.5, "condensed": true, "stationary": "pass",
+                "window_start": 0, "valid": "pass", ...}]}
+
+``sweep`` has one row per run (see :mod:`.sweep`).
 
 ``where`` holds only the keys that are set and is left out when there is no location.
 NumPy numbers become JSON numbers; non-finite floats become null.
@@ -21,6 +26,7 @@ from typing import Any
 import numpy as np
 
 from .model import AuditReport
+from .sweep import sweep_rows
 
 __all__ = ["report_dict", "report_json"]
 
@@ -73,6 +79,7 @@ def report_dict(report: AuditReport) -> dict[str, Any]:
         "massarc_version": report.massarc_version,
         "seconds": round(report.seconds, 6),
         "config": report.config,
+        "sweep": _plain(sweep_rows(report)),
     }
 
 

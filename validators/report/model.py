@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from massarc.schema.sweep import SweepPoint
+
 from ..engine.result import CheckResult, Status, worst
 
 __all__ = ["AuditReport", "RunReport"]
@@ -24,6 +26,8 @@ class RunReport(_Frozen):
     chunks: int = 0
     chunks_read: int = 0
     bytes_decoded: int = 0
+    #: The run's model parameters, for the sweep table (None without valid metadata).
+    point: SweepPoint | None = None
 
 
 class AuditReport(_Frozen):

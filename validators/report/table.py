@@ -1,4 +1,5 @@
-"""The human report: one compact table for all runs, then a summary line.
+"""The human report: one compact table for all runs, for a collection the sweep table
+(one line per run across its parameters, :mod:`.sweep`), then a summary line.
 
 Colour only on a terminal (rich decides from the console it is given). Status words are
 the statuses themselves, as in JSON and JUnit: ``pass``, ``warn``, ``fail``, ``skip``,
@@ -16,6 +17,7 @@ from rich.text import Text
 
 from ..engine.result import Where
 from .model import AuditReport
+from .sweep import render_sweep
 
 __all__ = ["STATUS_STYLE", "render_table"]
 
@@ -73,4 +75,6 @@ def render_table(report: AuditReport, file: IO[str], *, quiet: bool = False) -> 
             rows += 1
     if rows:
         console.print(table)
+    if len(report.runs) > 1:  # a collection: one line per run across its parameters
+        render_sweep(report, console, STATUS_STYLE)
     console.print(_summary(report), highlight=False)
