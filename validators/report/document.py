@@ -17,6 +17,7 @@ from typing import Any
 from pydantic import BaseModel, ConfigDict, Field
 
 from ..engine.result import Status, Where
+from .sweep import SweepRow
 
 __all__ = ["CheckDocument", "ReportDocument", "RunDocument", "report_schema"]
 
@@ -59,6 +60,9 @@ class ReportDocument(_Frozen):
     massarc_version: str
     seconds: float = Field(ge=0)
     config: str | None = Field(description="The settings file that applied, or null.")
+    sweep: list[SweepRow] = Field(
+        description="The sweep table: one row per run, its parameters and verdicts."
+    )
 
 
 def report_schema() -> dict[str, Any]:
