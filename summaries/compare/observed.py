@@ -50,7 +50,7 @@ def effective_draws(window: np.ndarray) -> float:
     >>> x = rng.normal(size=(4, 500))
     >>> 1000 < effective_draws(x) <= 2000
     True
-    >>> effective_draws(np.repeat(x, 10, axis=1)) < 400   # each draw repeated 10 times
+    >>> 1500 < effective_draws(np.repeat(x, 10, axis=1)) < 2500   # each repeated 10 times
     True
     """
     w = np.asarray(window, dtype=np.float64)
