@@ -9,7 +9,9 @@ The public API is small:
 * :func:`load_metadata`, :func:`parse_metadata` and :class:`RunMeta` describe it;
 * :func:`audit` runs the checks (``massarc check``) and returns an ``AuditReport``;
 * :func:`summarize` computes and stores the observables (``massarc summarize``); read them
-  back with ``open_run(p).summaries``.
+  back with ``open_run(p).summaries``;
+* :func:`compare_runs` tests whether two runs of one model agree (``massarc compare``) and
+  returns a :class:`Comparison`.
 
 The layers underneath are importable too: ``massarc.schema``, ``massarc.archive``
 (including ``massarc.archive.formats``), ``massarc.validators``, ``massarc.summaries``,
@@ -45,6 +47,7 @@ if TYPE_CHECKING:
     )
     from massarc.schema import MetadataError, RunMeta, load_metadata, parse_metadata
     from massarc.summaries import summarize
+    from massarc.summaries.compare import Comparison, compare_runs
     from massarc.validators import audit
 
 _LAZY = {
@@ -65,11 +68,14 @@ _LAZY = {
     "parse_metadata": "massarc.schema",
     "audit": "massarc.validators",
     "summarize": "massarc.summaries",
+    "Comparison": "massarc.summaries.compare",
+    "compare_runs": "massarc.summaries.compare",
 }
 
 __all__ = [
     "ArchiveError",
     "Collection",
+    "Comparison",
     "DataError",
     "MetadataError",
     "NotARunError",
@@ -78,6 +84,7 @@ __all__ = [
     "RunWriter",
     "__version__",
     "audit",
+    "compare_runs",
     "create_run",
     "load_metadata",
     "open_collection",
