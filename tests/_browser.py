@@ -156,8 +156,9 @@ class Browser:
         os.close(self._cmd)
         shutil.rmtree(self.profile, ignore_errors=True)
 
-    def open(self, url: str, *, width: int, height: int, media: str = "screen") -> None:
-        """Load ``url`` in a viewport of ``width`` x ``height`` CSS pixels."""
+    def open(self, url: str, *, width: int, height: int, media: str = "") -> None:
+        """Load ``url`` in a viewport of ``width`` x ``height`` CSS pixels, as for ``media``
+        (``print`` or ``screen``; empty: as the browser would, so that printing prints)."""
         metrics = {"width": width, "height": height, "deviceScaleFactor": 1, "mobile": False}
         self.send("Emulation.setDeviceMetricsOverride", metrics)
         self.send("Emulation.setEmulatedMedia", {"media": media})

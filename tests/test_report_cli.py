@@ -5,6 +5,7 @@ runs untouched."""
 
 from __future__ import annotations
 
+import json
 import os
 import shutil
 from pathlib import Path
@@ -138,3 +139,18 @@ def test_an_output_inside_a_run_or_its_collection_is_refused(runs, given, inside
     assert res.exit_code == 2, res.output
     assert "the report never writes into a run" in res.stderr
     assert _tree(runs["sweep"]) == before
+
+
+def test_a_run_with_broken_metadata_still_gets_its_page(tmp_path) -> None:
+    run = Path(shutil.copytree(ROOT / "samples" / "dune-strip.zarr", tmp_path / "d.zarr"))
+    header = json.loads((run / "zarr.json").read_text())
+    del header["attributes"]["massarc"]["metadata"]["model"]
+    (run / "zarr.json").write_text(json.dumps(header))
+    out = tmp_path / "page.html"
+    res = _report(str(run), "--only", "schema", "--summarize", "-q", "-o", str(out))
+    assert res.exit_code == 0, res.output
+    page = out.read_text(encoding="utf-8")
+    assert page_problems(page) == []
+    assert '<tr class="st-fail"><th scope="row"><code>schema</code>' in page
+    assert "The metadata cannot be read: " in page and "model" in page
+    assert "They could not be computed here: " in page

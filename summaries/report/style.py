@@ -69,7 +69,7 @@ table.checks td.kvs { min-width: 12rem; }
 table.glance { font-size: 0.88rem; }
 table.glance th, table.glance td { padding: 0.25rem 0.3rem; }
 table.glance .mark { min-width: 0; padding: 0 0.2em; }
-table.glance th[scope="row"] { white-space: normal; overflow-wrap: anywhere; }
+table.glance th[scope="row"] { white-space: normal; overflow-wrap: break-word; }
 ul.kv { list-style: none; margin: 0; padding: 0; font-size: 0.9em; }
 ul.kv code { overflow-wrap: normal; }
 ul.kv li { margin: 0; }
@@ -91,7 +91,7 @@ section.run { margin-bottom: 2rem; }
   a { color: inherit; text-decoration: none; }
   .scroll { overflow: visible; }
   table { font-size: 8pt; }
-  th[scope="row"], table.checks td:first-child { white-space: normal; overflow-wrap: anywhere; }
+  th[scope="row"], table.checks td:first-child { white-space: normal; overflow-wrap: break-word; }
   table.checks td.msg, table.checks td.kvs { min-width: 0; }
   ul.kv code { overflow-wrap: anywhere; }
   .mark { min-width: 0; }
