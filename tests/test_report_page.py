@@ -227,3 +227,24 @@ def test_the_page_in_a_real_browser(sweep, tmp_path) -> None:
         browser.open(url, width=794, height=1123, media="print")
         assert browser.evaluate("document.documentElement.scrollWidth") <= 794
         assert browser.errors == []
+
+
+@pytest.mark.skipif(
+    chromium_path() is None,
+    # the machine, not the extras, as above
+    reason="chromium is not installed (apt-get install chromium; .ci/run does it)",
+)
+def test_the_browser_checks_can_fail(tmp_path) -> None:
+    broken = tmp_path / "broken.html"
+    broken.write_text('<!DOCTYPE html><html lang="en"><title>t</title><body>'
+                      '<img src="data:image/png;base64,AAAA" alt="not a picture">'
+                      '<script>console.error("planted")</script></body></html>')  # fmt: skip
+    with Browser() as browser:
+        browser.open(broken.resolve().as_uri(), width=400, height=300)
+        assert browser.evaluate("Array.from(document.images).map(i => i.naturalWidth)") == [0]
+        assert "planted" in browser.errors
+        empty = tmp_path / "empty.html"
+        empty.write_text('<!DOCTYPE html><html lang="en"><title>t</title><body></body></html>')
+        browser.open(empty.resolve().as_uri(), width=400, height=300)
+        pixels = matplotlib.image.imread(browser.screenshot(tmp_path / "blank.png"))
+        assert pixels[..., :3].var() < 1e-3  # a page showing nothing is blank
