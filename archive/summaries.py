@@ -24,13 +24,13 @@ import os
 import shutil
 import uuid
 from collections.abc import Iterator, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import zarr
-from zarr.storage import LocalStore
+from zarr.storage import LocalStore, MemoryStore
 
 from massarc.schema.spec import ATTRIBUTE_KEY, SUMMARIES, SUMMARIES_KIND
 
@@ -38,7 +38,13 @@ from .errors import ArchiveError
 from .reader import Run
 from .store import local_path
 
-__all__ = ["StoredArray", "Summaries", "read_summaries", "write_summaries"]
+__all__ = [
+    "StoredArray",
+    "Summaries",
+    "hold_summaries",
+    "read_summaries",
+    "write_summaries",
+]
 
 _NEW, _OLD = f"{SUMMARIES}.new-", f"{SUMMARIES}.old-"
 
@@ -226,3 +232,26 @@ def read_summaries(run: Run) -> Summaries | None:
         if not isinstance(group, zarr.Group):
             return None
     return Summaries(run, group)
+
+
+@dataclass
+class _HeldRun(Run):
+    """A run as read, whose summaries are held in memory instead of read from the run."""
+
+    held: Summaries | None = None
+
+    @property
+    def summaries(self) -> Summaries | None:  # type: ignore[override]
+        return self.held
+
+
+def hold_summaries(run: Run, arrays: Mapping[str, StoredArray], attrs: Mapping[str, Any]) -> Run:
+    """A view of ``run`` whose :attr:`~massarc.archive.Run.summaries` are ``arrays`` and
+    ``attrs`` held in memory (a Zarr memory store, laid out as :func:`write_summaries`
+    stores them); nothing is written into the run. The view reads everything else from the
+    run itself."""
+    group = zarr.open_group(MemoryStore(), mode="w", zarr_format=3)
+    _fill(group, arrays, attrs)
+    view = _HeldRun(**{f.name: getattr(run, f.name) for f in fields(run)})
+    view.held = Summaries(view, group)
+    return view

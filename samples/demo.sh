@@ -94,4 +94,8 @@ say "9. Figures from the stored summaries (massarc plot; the runs are only read)
 "$M" plot "$WORK/sweep/depot-ring-unsettled.zarr" space-time -o "$WORK/depot-ring-unsettled.pdf"
 ls "$WORK"/*.png "$WORK"/*.svg "$WORK"/*.pdf
 
+say "10. One page for a referee: audit, metadata, summaries and figures (massarc report)"
+"$M" report "$WORK/sweep" -o "$WORK/report.html" --quiet
+echo "report page of the samples written to $WORK/report.html (open it in a browser)"
+
 say "Done. Outputs are in $WORK/"

@@ -3,6 +3,7 @@ stored with the run (the ``summaries`` group, format 1.1).
 
 * :func:`summarize` computes and stores them for runs and collections; it returns one
   :class:`SummaryOutcome` per run; :class:`SummaryOptions` lists what can be tuned;
+  :func:`summarize_in_memory` computes them for one run without writing into it;
 * ``massarc.open_run(p).summaries`` reads them back (NumPy arrays, or xarray objects
   when xarray is installed, with their provenance);
 * :func:`sweep_table`, :func:`render_summaries` and :func:`export_summaries` print and
@@ -14,7 +15,13 @@ stored arrays), :mod:`.replicas` (over replicas, bootstrap intervals), :mod:`.gr
 against theory), :mod:`.render` (tables, JSON, export), :mod:`.api`.
 """
 
-from .api import SummaryOutcome, open_for_summaries, summarize, summarize_run
+from .api import (
+    SummaryOutcome,
+    open_for_summaries,
+    summarize,
+    summarize_in_memory,
+    summarize_run,
+)
 from .options import SummaryOptions
 from .render import RENDERINGS, export_summaries, render_summaries, sweep_table
 
@@ -26,6 +33,7 @@ __all__ = [
     "open_for_summaries",
     "render_summaries",
     "summarize",
+    "summarize_in_memory",
     "summarize_run",
     "sweep_table",
 ]

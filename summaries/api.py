@@ -17,13 +17,19 @@ from typing import Any
 from massarc.archive import ArchiveError, Run, open_runs
 from massarc.archive.distributed import over_runs
 from massarc.archive.progress import Progress
-from massarc.archive.summaries import Summaries, plain, write_summaries
+from massarc.archive.summaries import Summaries, hold_summaries, plain, write_summaries
 
 from .build import build_summaries
 from .collect import choose_window, single_pass
 from .options import SummaryOptions
 
-__all__ = ["SummaryOutcome", "open_for_summaries", "summarize", "summarize_run"]
+__all__ = [
+    "SummaryOutcome",
+    "open_for_summaries",
+    "summarize",
+    "summarize_in_memory",
+    "summarize_run",
+]
 
 
 @dataclass(frozen=True)
@@ -101,6 +107,28 @@ def summarize_run(
     fresh = run.summaries
     assert fresh is not None
     return SummaryOutcome(run, fresh, True, time.perf_counter() - started, col.seconds)
+
+
+def summarize_in_memory(
+    run: Run,
+    options: SummaryOptions | Mapping[str, Any] | None = None,
+    *,
+    workers: int | None = None,
+    progress: Progress | None = None,
+) -> SummaryOutcome:
+    """Compute the summaries of one run as :func:`summarize_run` does, but hold them in
+    memory: nothing is written into the run. The outcome's ``run`` is a view of the run
+    whose ``summaries`` are the ones computed (figures draw from it like from a stored
+    set); raises like :func:`summarize` for a run that cannot be summarised."""
+    started = time.perf_counter()
+    opts = options if isinstance(options, SummaryOptions) else SummaryOptions.from_mapping(options)
+    _refuse(run)
+    col = single_pass(run, opts, workers=workers, progress=progress)
+    window = choose_window(run, col.snapshots, opts.window)
+    view = hold_summaries(run, *build_summaries(run, opts, col, window))
+    held = view.summaries
+    assert held is not None
+    return SummaryOutcome(view, held, True, time.perf_counter() - started, col.seconds)
 
 
 def summarize(

@@ -21,6 +21,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "summarize": ("summarize", "Compute and store the observables groups publish."),
     "plot": ("plot", "Draw a figure of a run from its stored summaries (PNG, SVG, PDF)."),
     "compare": ("compare", "Test whether two runs of one model agree; exit 1 when not."),
+    "report": ("report", "Write one HTML page of runs: metadata, checks, summaries, figures."),
     "convert": ("convert", "Convert runs between formats, into or out of an archive."),
     "ingest": ("ingest", "Archive a run live from a simulator's text output."),
     "sample": ("sample", "Simulate a reference ZRP or CMAM run into an archive."),

@@ -13,6 +13,8 @@ one directory). Only one file is read, and the report names it. Keys::
     [tool.massarc.checks.conservation]
     tolerance = 0                    # per-check options (see ``massarc check --list``)
 
+The settings record where each option was set (``origins``: the file, or ``--set``), so
+that a report can say where every threshold it was judged by came from.
 Command-line options override the file: ``--strict``/``--no-strict`` replace ``strict``,
 ``--skip`` adds to ``skip``, ``--only`` runs exactly the checks it names (even those the
 file skips), and
@@ -63,6 +65,10 @@ class AuditSettings(BaseModel):
     strict: bool = False
     options: dict[str, dict[str, Any]] = Field(default_factory=dict)
     source: str | None = Field(None, description="The file the settings came from.")
+    origins: dict[str, dict[str, str]] = Field(
+        default_factory=dict,
+        description="Where each option in `options` was set: the file's path or `--set`.",
+    )
 
 
 def _known(checks: Mapping[str, type[Check]]) -> str:
@@ -141,11 +147,14 @@ def parse_settings(
     table = data.get("checks", {})
     if not isinstance(table, Mapping):
         raise ConfigError(f"{head}{prefix}checks: expected a table; got {table!r}")
+    options = parse_options(table, checks, f"{head}{prefix}checks")
+    where = source or "settings"
     return AuditSettings(
         skip=_check_ids(skip, checks, f"{head}{prefix}skip"),
         strict=strict,
-        options=parse_options(table, checks, f"{head}{prefix}checks"),
+        options=options,
         source=source,
+        origins={cid: dict.fromkeys(opts, where) for cid, opts in options.items()},
     )
 
 
@@ -231,8 +240,10 @@ def resolve_settings(
         raise ConfigError(f"{config}: no such configuration file")
     base = load_settings(path, checks) if path is not None else AuditSettings()
     options = {cid: dict(opts) for cid, opts in base.options.items()}
+    origins = {cid: dict(where) for cid, where in base.origins.items()}
     for cid, opts in _parse_sets(sets, checks).items():
         options.setdefault(cid, {}).update(opts)
+        origins.setdefault(cid, {}).update(dict.fromkeys(opts, "--set"))
     only_ids = _check_ids(only, checks, "--only")
     kept = tuple(cid for cid in base.skip if cid not in only_ids)  # --only names win
     return AuditSettings(
@@ -241,4 +252,5 @@ def resolve_settings(
         strict=base.strict if strict is None else strict,
         options=options,
         source=base.source,
+        origins=origins,
     )
