@@ -92,9 +92,17 @@ def command(
     if not runs:
         die(_NAME, "expected at least one RUN_OR_COLLECTION; got none")
     try:
-        settings = resolve_settings(config=config, skip=skip, only=only, strict=strict, sets=sets)
+        settings = resolve_settings(
+            config=config, skip=skip, only=only, strict=strict, sets=sets, runs=runs
+        )
     except ConfigError as exc:
         die(_NAME, str(exc))
+    for path in settings.ignored:
+        click.echo(
+            f"massarc {_NAME}: warning: ignored {path}: a configuration file inside the audited "
+            "runs never sets the audit rules (use --config to choose one)",
+            err=True,
+        )
     opened = []
     with bad_input(_NAME):
         for location in runs:
@@ -110,6 +118,8 @@ def command(
                 progress=progress,
                 workers=workers,
                 config=settings.source,
+                origins=settings.origins,
+                ignored=settings.ignored,
             )
         except ConfigError as exc:
             die(_NAME, str(exc))

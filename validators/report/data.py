@@ -6,7 +6,15 @@ Shape (stable; outside tools rely on it)::
                "checks": [{"id": "conservation", "status": "fail", "message": "...",
                            "where": {"replica": 2, "snapshot": 1234},
                            "values": {...}, "thresholds": {...}}]}],
-     "status": "fail", "strict": false, "massarc_version": "...", ...}
+     "status": "fail", "strict": false, "massarc_version": "...", ...,
+     "config": "pyproject.toml",
+     "options": [{"check": "conservation", "option": "tolerance", "value": 2,
+                  "default": 0, "source": "--set"}],
+     "ignored": ["sweep/run-3.zarr/massarc.toml"]}
+
+``config`` is the settings file read (null: none); ``options`` lists every check option
+not at its default with where its value came from (the file, ``--set``); ``ignored`` the
+configuration files found inside the audited runs and collections, never read.
 
 ``where`` holds only the keys that are set and is left out when there is no location.
 NumPy numbers become JSON numbers; non-finite floats become null.
@@ -73,6 +81,8 @@ def report_dict(report: AuditReport) -> dict[str, Any]:
         "massarc_version": report.massarc_version,
         "seconds": round(report.seconds, 6),
         "config": report.config,
+        "options": [_plain(o.model_dump()) for o in report.options],
+        "ignored": list(report.ignored),
     }
 
 
