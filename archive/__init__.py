@@ -2,7 +2,7 @@
 pass over chunks, and the converters from and to other formats."""
 
 from .bounded import install as _install_bounded_codecs
-from .errors import ArchiveError, DataError, NotARunError
+from .errors import ArchiveError, DataError, NotARunError, WriteError
 from .layout import chunk_snapshots, codecs, mass_dtype
 from .reader import Chunk, ChunkRef, Run, open_run, open_runs
 from .store import open_store
@@ -18,6 +18,7 @@ __all__ = [
     "NotARunError",
     "Run",
     "RunWriter",
+    "WriteError",
     "chunk_snapshots",
     "codecs",
     "create_run",

@@ -11,6 +11,7 @@ half-written file is ever left under the destination's name. Inputs are opened r
 
 from __future__ import annotations
 
+import errno
 import os
 import secrets
 import shutil
@@ -19,7 +20,7 @@ from dataclasses import dataclass, field
 from functools import partial
 from pathlib import Path
 
-from ..errors import ArchiveError
+from ..errors import ArchiveError, WriteError
 from ..reader import open_run
 from ..store import local_path
 from ._options import archive_options, understands
@@ -27,6 +28,9 @@ from .registry import Format, Progress, detect_format, get_format
 from .stream import resolve_metadata, write_source
 
 __all__ = ["ConvertReport", "convert", "split_options"]
+
+#: Error numbers of a storage that has no room left for the output.
+_STORAGE_FULL = {errno.ENOSPC, errno.EDQUOT, errno.EFBIG}
 
 
 @dataclass(frozen=True)
@@ -174,6 +178,24 @@ def convert(
                 list(notes),
             )
         _place(tmp, dst_path)
+    except WriteError as exc:
+        _remove(tmp)
+        raise WriteError(
+            f"{dst_text}: {exc.reason}; nothing was written (the partial output was removed)",
+            exc.reason,
+            exc.errno,
+        ) from exc
+    except OSError as exc:  # an export's own file writes (text, HDF5, ...)
+        _remove(tmp)
+        if exc.errno not in _STORAGE_FULL:
+            raise
+        reason = exc.strerror or str(exc)
+        reason = reason[:1].lower() + reason[1:]
+        raise WriteError(
+            f"{dst_text}: {reason}; nothing was written (the partial output was removed)",
+            reason,
+            exc.errno,
+        ) from exc
     except BaseException:
         _remove(tmp)
         raise
