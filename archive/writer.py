@@ -545,8 +545,14 @@ def create_run(
     store = open_store(location, "w")
     state = WriteState(snapshots=0, replicas=0, complete=False)
     try:
-        group = zarr.open_group(store, mode="w" if overwrite else "w-", zarr_format=3)
-        group.update_attributes({ATTRIBUTE_KEY: _header_dict(meta, state)})
+        # the header goes into the group's first zarr.json: a kill cannot leave a group
+        # without one
+        group = zarr.open_group(
+            store,
+            mode="w" if overwrite else "w-",
+            zarr_format=3,
+            attributes={ATTRIBUTE_KEY: _header_dict(meta, state)},
+        )
     except (ContainsGroupError, ContainsArrayError, FileExistsError):
         raise ArchiveError(f"{name}: already exists (pass overwrite=True to replace it)") from None
     except OSError as exc:
@@ -584,6 +590,11 @@ def resume_run(
     group = zarr.open_group(open_store(location, "a"), mode="r+", zarr_format=3)
     header = parse_header(group.attrs.get(ATTRIBUTE_KEY), name)
     state = header.state.model_copy(update={"complete": False})
+    if header.state.snapshots == 0 and (MASS in group) != (TIME in group):
+        # killed while the arrays were being created, before any commit: begin them again
+        for key in (MASS, TIME, *_SERIES):
+            if key in group:
+                del group[key]
     writer = RunWriter(
         group, header.metadata, state, name=name, strict=strict, commit_seconds=commit_seconds
     )
