@@ -257,8 +257,8 @@ def _text(path: Path, mass: np.ndarray, times: np.ndarray) -> None:
 
 def test_ingest_from_a_steady_producer_killed_at_random_then_resumed(tmp_path: Path) -> None:
     rng = np.random.default_rng(33)
-    mass = multinomial_run(2, 150, (24,), 60, seed=8)
-    times = np.arange(150) * 0.25
+    mass = multinomial_run(5, 60, (24,), 60, seed=8)  # a commit at each replica boundary
+    times = np.arange(60) * 0.25
     stream = tmp_path / "stream.txt"
     _text(stream, mass, times)
     meta = _meta_file(tmp_path, 24)
@@ -299,7 +299,7 @@ def test_ingest_from_a_steady_producer_killed_at_random_then_resumed(tmp_path: P
         for p in producers:
             p.kill()
             p.wait(timeout=30)
-    assert committed_before_kill >= 3, "some kills should land after a commit, before the end"
+    assert committed_before_kill >= 2, "some kills should land after a commit, before the end"
 
 
 @pytest.mark.parametrize("seed", [41])
