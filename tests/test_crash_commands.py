@@ -29,6 +29,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from _audit_runs import write_text_stream
 from conftest import make_meta, multinomial_run
 
 from massarc.archive import open_run
@@ -244,23 +245,12 @@ def test_sample_killed_at_random(tmp_path: Path) -> None:
     assert mid_write >= 5, "kills should land while the sampler is writing"
 
 
-def _text(path: Path, mass: np.ndarray, times: np.ndarray) -> None:
-    lines = ["# massarc-text 1\n"]
-    for r in range(len(mass)):
-        lines.append(f"# replica {r}\n")
-        lines += [
-            f"{t!r} " + " ".join(map(str, row)) + "\n"
-            for t, row in zip(times.tolist(), mass[r].tolist(), strict=True)
-        ]
-    path.write_text("".join(lines))
-
-
 def test_ingest_from_a_steady_producer_killed_at_random_then_resumed(tmp_path: Path) -> None:
     rng = np.random.default_rng(33)
     mass = multinomial_run(5, 60, (24,), 60, seed=8)  # a commit at each replica boundary
     times = np.arange(60) * 0.25
     stream = tmp_path / "stream.txt"
-    _text(stream, mass, times)
+    write_text_stream(stream, mass, times)
     meta = _meta_file(tmp_path, 24)
     delay = "0.004"  # steady: never idle for the 50 ms grace, so commits come by the clock
     producers: list[subprocess.Popen[bytes]] = []

@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import zarr.storage._local as zarr_local
+from _audit_runs import write_text_stream
 from click.testing import CliRunner
 from conftest import make_meta, multinomial_run
 
@@ -142,21 +143,10 @@ def test_convert_into_an_archive_leaves_nothing(tmp_path: Path, disk: Disk) -> N
     assert {p: p.read_bytes() for p in src.parent.iterdir()} == before
 
 
-def _text(path: Path, data: np.ndarray, times: np.ndarray) -> None:
-    lines = ["# massarc-text 1\n"]
-    for r in range(len(data)):
-        lines.append(f"# replica {r}\n")
-        lines += [
-            f"{t!r} " + " ".join(map(str, row)) + "\n"
-            for t, row in zip(times.tolist(), data[r].tolist(), strict=True)
-        ]
-    path.write_text("".join(lines))
-
-
 def test_ingest_keeps_the_committed_prefix_and_resumes(tmp_path: Path, disk: Disk) -> None:
     data, times = _data()
     stream = tmp_path / "stream.txt"
-    _text(stream, data, times)
+    write_text_stream(stream, data, times)
     meta = tmp_path / "meta.json"
     meta.write_text(make_meta(sites=(L,)).model_dump_json(exclude_none=True))
     base = ["ingest", str(stream)]
