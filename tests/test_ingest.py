@@ -226,6 +226,9 @@ def test_steady_input_is_committed_at_least_every_commit_interval(tmp_path, meta
     proc = _ingest("-", dst, meta, stdin=feeder.stdout)
     feeder.stdout.close()
     try:
+        # the producer waits after its first lines until the archive exists (massarc may
+        # take long to start on a loaded machine); from then on it prints steadily
+        _wait(dst, lambda st: True)
         st = _wait(dst, lambda st: st.get("snapshots", 0) >= 10, timeout=5.0)
         assert feeder.poll() is None, "the producer finished before anything was committed"
         assert not st.get("complete")

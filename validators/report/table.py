@@ -88,4 +88,4 @@ def render_table(report: AuditReport, file: IO[str], *, quiet: bool = False) -> 
         console.print(table)
     console.print(_summary(report), highlight=False)
     for line in _rules(report):
-        console.print(line, highlight=False, markup=False)
+        console.print(line, highlight=False, markup=False, soft_wrap=True)  # paths stay whole
