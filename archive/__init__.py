@@ -2,7 +2,7 @@
 pass over chunks, and the converters from and to other formats."""
 
 from .bounded import install as _install_bounded_codecs
-from .errors import ArchiveError, DataError, NotARunError
+from .errors import ArchiveError, DataError, NotARunError, WriteError
 from .labelled import Collection, open_collection
 from .layout import chunk_snapshots, codecs, mass_dtype
 from .reader import Chunk, ChunkRef, Run, open_run, open_runs
@@ -20,6 +20,7 @@ __all__ = [
     "NotARunError",
     "Run",
     "RunWriter",
+    "WriteError",
     "chunk_snapshots",
     "codecs",
     "create_run",

@@ -242,31 +242,44 @@ def missing_time_chunks(run: Run) -> list[tuple[str, int, int]]:
     return out
 
 
-def checked_chunks(run: Run) -> Iterator[Chunk]:
+def checked_chunks(run: Run, *, allow_missing: bool = False) -> Iterator[Chunk]:
     """Every committed chunk of ``run``, decoded, replica-major then time; a chunk that is
     missing (zarr would read it as the fill value) or corrupt raises :class:`ChunkError`
-    naming it, so that no reader of this function mistakes the sentinel for data."""
+    naming it, so that no reader of this function mistakes the sentinel for data. With
+    ``allow_missing`` such a chunk is yielded with zeros and ``missing`` set to the
+    message instead."""
     refs = run.chunk_refs()
     reader = ChunkReader(run)
     missing = {} if reader.direct else missing_chunks(run, refs)
     for i, ref in enumerate(refs):
-        yield read_checked(reader, ref, missing.get(i))
+        yield read_checked(reader, ref, missing.get(i), allow_missing=allow_missing)
 
 
-def read_checked(reader: ChunkReader, ref: ChunkRef, missing: tuple[str, str] | None) -> Chunk:
-    """One chunk read by ``reader``; a missing one (``missing``: its entry of
-    :func:`missing_chunks`, or found absent while reading) or a corrupt one raises
-    :class:`ChunkError` naming the run, the chunk, the replica and the snapshots."""
-    name = reader.run.name
+def read_checked(
+    reader: ChunkReader,
+    ref: ChunkRef,
+    absent: tuple[str, str] | None = None,
+    *,
+    allow_missing: bool = False,
+) -> Chunk:
+    """One chunk read as :func:`checked_chunks` reads it; ``absent``: the key and message
+    of :func:`missing_chunks` when the store listing already shows it missing."""
+    run = reader.run
     where = f"replica {ref.replica}, snapshots {ref.start}..{ref.stop - 1}"
-    if missing is not None:
-        key, why = missing
-        raise ChunkError(f"{name}: chunk {key} ({where}) is missing: {why}")
     try:
-        return reader.read(ref)
-    except MissingChunk as exc:
-        raise ChunkError(f"{name}: chunk {ref.key} ({where}) is missing: {exc}") from None
-    except CorruptChunk as exc:
-        raise ChunkError(
-            f"{name}: chunk {ref.key} ({where}) is corrupt: {_first_line(exc)}"
-        ) from None
+        if absent is not None:
+            key, why = absent
+            raise ChunkError(f"{run.name}: chunk {key} ({where}) is missing: {why}")
+        try:
+            return reader.read(ref)
+        except MissingChunk as exc:
+            raise ChunkError(f"{run.name}: chunk {ref.key} ({where}) is missing: {exc}") from None
+        except CorruptChunk as exc:
+            raise ChunkError(
+                f"{run.name}: chunk {ref.key} ({where}) is corrupt: {_first_line(exc)}"
+            ) from None
+    except ChunkError as exc:
+        if not allow_missing:
+            raise
+        zeros = np.zeros((ref.stop - ref.start, *run.sites), dtype=run.dtype)
+        return Chunk(ref.replica, ref.start, ref.stop, zeros, ref.key, missing=str(exc))

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = ["ArchiveError", "ChunkError", "DataError", "NotARunError"]
+__all__ = ["ArchiveError", "ChunkError", "DataError", "NotARunError", "WriteError"]
 
 
 class ArchiveError(ValueError):
@@ -20,3 +20,14 @@ class DataError(ArchiveError):
 class ChunkError(ArchiveError):
     """A chunk of ``mass`` that is missing or corrupt where its data are needed (an
     export): the message names the run, the chunk key, the replica and the snapshots."""
+
+
+class WriteError(ArchiveError):
+    """The storage refused a write (a full disk, a lost mount, no permission): the message
+    names the run, says what happened (``reason``, e.g. "no space left on device") and what
+    stays committed. ``errno`` is the operating system's error number, if any."""
+
+    def __init__(self, message: str, reason: str, errno: int | None = None) -> None:
+        super().__init__(message)
+        self.reason = reason
+        self.errno = errno

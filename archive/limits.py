@@ -145,6 +145,10 @@ def local_problem(root: Path) -> str | None:
                     st = os.stat(entry.path)
                 else:
                     st = entry.stat(follow_symlinks=False)
+            except FileNotFoundError as exc:
+                if not entry.is_symlink():
+                    continue  # gone since listed: a writer's temporary file, renamed or removed
+                return f"{rel}: cannot be examined ({exc.strerror})"
             except OSError as exc:
                 return f"{rel}: cannot be examined ({exc.strerror})"
             if stat.S_ISDIR(st.st_mode):

@@ -60,13 +60,18 @@ class ChunkRef:
 
 @dataclass(frozen=True)
 class Chunk:
-    """The decoded masses of one chunk: ``mass`` is ``(stop - start, *lattice)``."""
+    """The decoded masses of one chunk: ``mass`` is ``(stop - start, *lattice)``.
+
+    ``missing``: None for data; else why the chunk could not be read (missing or corrupt),
+    and ``mass`` holds zeros that are not data (only from ``Run.chunks(allow_missing=True)``).
+    """
 
     replica: int
     start: int
     stop: int
     mass: np.ndarray
     key: str = ""
+    missing: str | None = None
 
 
 @dataclass
@@ -284,14 +289,16 @@ class Run:
         data = np.asarray(self.mass[ref.replica, ref.start : ref.stop])
         return Chunk(ref.replica, ref.start, ref.stop, data, ref.key)
 
-    def chunks(self) -> Iterator[Chunk]:
+    def chunks(self, *, allow_missing: bool = False) -> Iterator[Chunk]:
         """Decoded chunks one at a time, replica-major then time (memory: one chunk).
 
         A missing or corrupt chunk raises :class:`~massarc.archive.errors.ChunkError`
-        naming it: zarr alone would read a missing chunk as the fill value."""
+        naming it: zarr alone would read a missing chunk as the fill value. With
+        ``allow_missing`` it comes as a :class:`Chunk` whose ``missing`` says why, its
+        masses zeros that are not data."""
         from ._chunk_read import checked_chunks  # it imports this module
 
-        yield from checked_chunks(self)
+        yield from checked_chunks(self, allow_missing=allow_missing)
 
     def read(self, replica: int, start: int = 0, stop: int | None = None) -> np.ndarray:
         """Masses of one replica for snapshots [start, stop), as ``(time, *lattice)``."""

@@ -14,12 +14,18 @@ attribute ``massarc``) is advanced in one atomic file replace. Readers trust the
 and truncate the arrays to it, so a reader never sees a half-written snapshot, and after a
 kill at any moment the archive reopens as a consistent prefix. :func:`resume_run` trims the
 arrays back to the marker, removes stray ``*.partial`` files and continues.
+
+A write the storage refuses (a full disk: ``OSError`` ENOSPC; any other ``OSError``) stops
+the writer with a :class:`~massarc.archive.errors.WriteError` naming the run and the
+reason; what was committed before stays committed and the run stays incomplete, so
+:func:`resume_run` continues it once there is room.
 """
 
 from __future__ import annotations
 
 import time as _time
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from typing import Any
 
 import numpy as np
@@ -37,7 +43,7 @@ from massarc.schema.spec import (
     TIME,
 )
 
-from .errors import ArchiveError, DataError
+from .errors import ArchiveError, DataError, WriteError
 from .guards import guard_masses, guard_times
 from .layout import (
     chunk_snapshots,
@@ -51,6 +57,12 @@ from .store import Location, local_path, location_name, open_store
 __all__ = ["RunWriter", "create_run", "resume_run"]
 
 _SERIES = (INFLOW, OUTFLOW)
+
+
+def _reason(exc: OSError) -> str:
+    """The operating system's words for ``exc``, lower case ("no space left on device")."""
+    text = exc.strerror or str(exc) or type(exc).__name__
+    return text[:1].lower() + text[1:]
 
 
 def _header_dict(meta: RunMeta, state: WriteState) -> dict[str, Any]:
@@ -93,6 +105,8 @@ class RunWriter:
         self._group = group
         self.meta = meta
         self.state = state
+        #: the write state of the last commit marker written (what a reader sees)
+        self.committed = state
         self.name = name
         self._dtype = np.dtype(dtype) if dtype is not None else None
         self._max_mass = max_mass
@@ -214,6 +228,28 @@ class RunWriter:
         """Write buffered snapshots and advance the commit marker."""
         if not self._buf_len:
             return
+        with self._writing():
+            self._write_buffer()
+
+    @contextmanager
+    def _writing(self) -> Iterator[None]:
+        """Turn a write the storage refuses into a :class:`WriteError` and stop the writer
+        (the committed prefix stays as it is)."""
+        try:
+            yield
+        except OSError as exc:
+            self._closed = True
+            st = self.committed
+            reason = _reason(exc)
+            raise WriteError(
+                f"{self.name}: {reason}; the run keeps the {st.snapshots} snapshots of "
+                f"{st.replicas} replicas committed before and stays incomplete (make room, "
+                "then resume it)",
+                reason,
+                exc.errno,
+            ) from exc
+
+    def _write_buffer(self) -> None:
         rep = self._buf_replica
         # one buffered block (an importer appending whole chunks) is written without a copy
         bufs = self._buf_mass
@@ -257,6 +293,10 @@ class RunWriter:
             return
         self.flush()
         self._closed = True
+        with self._writing():
+            self._finish(complete)
+
+    def _finish(self, complete: bool) -> None:
         st = self.state
         if st.open_replica:
             raise DataError(
@@ -458,6 +498,7 @@ class RunWriter:
 
     def _commit(self) -> None:
         self._group.update_attributes({ATTRIBUTE_KEY: _header_dict(self.meta, self.state)})
+        self.committed = self.state
         self._last_commit = _time.monotonic()
 
     def undo_resume(self) -> bool:
@@ -502,12 +543,21 @@ def create_run(
     if dtype is not None and np.dtype(dtype).kind not in "ui":
         raise ArchiveError(f"{name}: expected an integer dtype; got {np.dtype(dtype)}")
     store = open_store(location, "w")
+    state = WriteState(snapshots=0, replicas=0, complete=False)
     try:
-        group = zarr.open_group(store, mode="w" if overwrite else "w-", zarr_format=3)
+        # the header goes into the group's first zarr.json: a kill cannot leave a group
+        # without one
+        group = zarr.open_group(
+            store,
+            mode="w" if overwrite else "w-",
+            zarr_format=3,
+            attributes={ATTRIBUTE_KEY: _header_dict(meta, state)},
+        )
     except (ContainsGroupError, ContainsArrayError, FileExistsError):
         raise ArchiveError(f"{name}: already exists (pass overwrite=True to replace it)") from None
-    state = WriteState(snapshots=0, replicas=0, complete=False)
-    group.update_attributes({ATTRIBUTE_KEY: _header_dict(meta, state)})
+    except OSError as exc:
+        reason = _reason(exc)
+        raise WriteError(f"{name}: {reason}; the run was not begun", reason, exc.errno) from exc
     return RunWriter(
         group,
         meta,
@@ -540,6 +590,11 @@ def resume_run(
     group = zarr.open_group(open_store(location, "a"), mode="r+", zarr_format=3)
     header = parse_header(group.attrs.get(ATTRIBUTE_KEY), name)
     state = header.state.model_copy(update={"complete": False})
+    if header.state.snapshots == 0 and (MASS in group) != (TIME in group):
+        # killed while the arrays were being created, before any commit: begin them again
+        for key in (MASS, TIME, *_SERIES):
+            if key in group:
+                del group[key]
     writer = RunWriter(
         group, header.metadata, state, name=name, strict=strict, commit_seconds=commit_seconds
     )

@@ -17,7 +17,7 @@ from massarc.archive import create_run
 from massarc.schema import RunMeta
 from massarc.validators import Check, CheckContext
 
-__all__ = ["RaisingCheck", "chunk_file", "write_run"]
+__all__ = ["RaisingCheck", "chunk_file", "write_run", "write_text_stream"]
 
 
 class RaisingCheck(Check):
@@ -72,3 +72,16 @@ def chunk_file(run: Path, replica: int, k: int) -> Path:
     """The file of chunk ``k`` (along time) of ``replica`` in a 1D or 2D run."""
     files = sorted((run / "mass" / "c" / str(replica) / str(k)).rglob("*"))
     return next(f for f in files if f.is_file())
+
+
+def write_text_stream(path: Path, mass: np.ndarray, times: np.ndarray) -> None:
+    """The plain-text format (docs/formats.md) of ``mass`` ``(replica, time, site)``: a
+    ``# replica N`` line, then one line per snapshot: the time, then the masses."""
+    lines = ["# massarc-text 1\n"]
+    for r in range(len(mass)):
+        lines.append(f"# replica {r}\n")
+        lines += [
+            f"{t!r} " + " ".join(map(str, row)) + "\n"
+            for t, row in zip(times.tolist(), mass[r].tolist(), strict=True)
+        ]
+    path.write_text("".join(lines))

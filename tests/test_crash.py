@@ -127,3 +127,28 @@ def test_resume_extends_a_finished_run(tmp_path: Path) -> None:
         w.append(times[100:], data[:, 100:])
     run = open_run(tmp_path / "r.zarr")
     assert run.complete and np.array_equal(np.asarray(run.mass[:]), data)
+
+
+def test_resume_after_a_kill_while_the_arrays_were_created(tmp_path: Path) -> None:
+    """A kill between creating ``mass`` and ``time`` (found by the ingest kill test of
+    tests/test_crash_commands.py): nothing was committed, so resume begins the arrays again
+    instead of failing on the missing ``time``."""
+    import json
+    import shutil
+
+    from conftest import make_meta
+
+    data, times = expected()
+    path = tmp_path / "r.zarr"
+    w = create_run(path, make_meta("cmam", sites=(L,), boundary="reflecting"))
+    w.append(times[:4], data[:, :4])
+    w._ensure_arrays(data[:, :4], {})  # the arrays exist; nothing committed yet
+    shutil.rmtree(path / "time")  # as if killed after mass, before time
+    assert (
+        json.loads((path / "zarr.json").read_text())["attributes"]["massarc"]["state"]["snapshots"]
+        == 0
+    )
+    with resume_run(path) as again:
+        again.append(times, data)
+    run = open_run(path)
+    assert run.complete and np.array_equal(np.asarray(run.mass[:]), data)

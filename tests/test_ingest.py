@@ -219,19 +219,18 @@ def test_a_refused_resume_changes_nothing(tmp_path, meta):
 
 def test_steady_input_is_committed_at_least_every_commit_interval(tmp_path, meta):
     # issue 11, defect 8: with a producer printing every 20 ms (never idle for the 50 ms
-    # grace) nothing was committed after 5 s, and a kill lost everything received. The
-    # clock starts at the first commit, not at launch: starting Python on a loaded machine
-    # can take longer than the producer runs.
-    stream, _ = _stream(tmp_path, replicas=1, snapshots=3000)  # 60 s of output at 20 ms
+    # grace) nothing was committed after 5 s, and a kill lost everything received
+    stream, _ = _stream(tmp_path, replicas=1, snapshots=400)  # 8 s of output at 20 ms
     dst = tmp_path / "steady.zarr"
     feeder = _feed(stream, dst, 0.02)
     proc = _ingest("-", dst, meta, stdin=feeder.stdout)
     feeder.stdout.close()
     try:
-        first = _wait(dst, lambda st: st.get("snapshots", 0) >= 1, timeout=60.0)["snapshots"]
-        # the commit interval is 1 s: within 3 s of one commit comes another
-        st = _wait(dst, lambda st: st.get("snapshots", 0) > first, timeout=3.0)
-        assert feeder.poll() is None, "the producer finished before the second commit"
+        # the producer waits after its first lines until the archive exists (massarc may
+        # take long to start on a loaded machine); from then on it prints steadily
+        _wait(dst, lambda st: True)
+        st = _wait(dst, lambda st: st.get("snapshots", 0) >= 10, timeout=5.0)
+        assert feeder.poll() is None, "the producer finished before anything was committed"
         assert not st.get("complete")
     finally:
         proc.kill()

@@ -29,7 +29,7 @@ def _one_line(res) -> str:
     return lines[0]
 
 
-@pytest.mark.parametrize("suffix", [".npz", ".txt", ".npy", ".h5", ".csv"])
+@pytest.mark.parametrize("suffix", [".npz", ".txt", ".npy", ".h5", ".csv", ".nc"])
 def test_missing_chunk_fails_the_export(run: Path, tmp_path: Path, suffix: str) -> None:
     chunk_file(run, 1, 2).unlink()
     out = tmp_path / f"out{suffix}"
@@ -40,7 +40,7 @@ def test_missing_chunk_fails_the_export(run: Path, tmp_path: Path, suffix: str) 
     assert sorted(p.name for p in tmp_path.iterdir()) == ["run.zarr"]
 
 
-@pytest.mark.parametrize("suffix", [".npz", ".txt", ".zarr"])
+@pytest.mark.parametrize("suffix", [".npz", ".txt", ".zarr", ".nc"])
 def test_corrupt_chunk_fails_without_a_traceback(run: Path, tmp_path: Path, suffix: str) -> None:
     target = chunk_file(run, 2, 0)
     raw = bytearray(target.read_bytes())

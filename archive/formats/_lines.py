@@ -33,6 +33,7 @@ from ._scan import DATA, ERR_EMPTY, ERR_LEAD, ERR_LONG, scan_lines
 
 __all__ = [
     "META_PREFIX",
+    "MISSING_PREFIX",
     "LineParser",
     "LineReader",
     "Rows",
@@ -43,6 +44,9 @@ __all__ = [
 ]
 
 META_PREFIX = "# massarc-meta:"
+#: Starts the line an export with ``--allow-missing`` writes in place of snapshots it could
+#: not read (see ``_export``); a file holding one is refused on import.
+MISSING_PREFIX = "# massarc-missing:"
 _REPLICA = re.compile(rb"^\s*#\s*replica\s+(\S+)\s*$")
 _MAGIC = re.compile(rb"^#\s*(massarc-[a-z]+)(?:\s+(\S+))?\s*$")
 BATCH_BYTES = 1 << 20
@@ -250,6 +254,13 @@ class LineParser:
                     f"got {shown(text.decode(errors='replace'))}"
                 ) from None
             return
+        if text.startswith(MISSING_PREFIX.encode()):
+            marked = text[len(MISSING_PREFIX) :].decode(errors="replace").split(":")[0]
+            raise DataError(
+                f"{self._where(line)}this file marks snapshots as missing "
+                f"({marked.strip()[:80]}); "
+                "an archive holds only whole runs, so it cannot be imported"
+            )
         meta = meta_line(text, self.name, line)
         if meta is not None:
             if self.seen_data:

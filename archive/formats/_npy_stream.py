@@ -3,7 +3,7 @@ member of an ``.npz`` (which may be a compressed zip member that only reads forw
 
 from __future__ import annotations
 
-from typing import BinaryIO
+from typing import Any, BinaryIO
 
 import numpy as np
 
@@ -30,9 +30,12 @@ def read_npy_header(fp: BinaryIO, name: str) -> tuple[tuple[int, ...], bool, np.
     return tuple(int(s) for s in shape), bool(fortran), dtype
 
 
-def write_npy_stream(fp: BinaryIO, run: Run, progress: Progress | None = None) -> None:
+def write_npy_stream(
+    fp: BinaryIO, run: Run, progress: Progress | None = None, lost: Any = None
+) -> None:
     """Write the masses of ``run`` as one ``.npy`` ``(replica, time, *lattice)`` to ``fp``,
-    a chunk at a time."""
+    a chunk at a time. ``lost`` (a ``MissingMask``): missing chunks are written as zeros
+    and recorded there instead of stopping the export."""
     header = {
         "descr": np.lib.format.dtype_to_descr(run.dtype),
         "fortran_order": False,
@@ -41,7 +44,9 @@ def write_npy_stream(fp: BinaryIO, run: Run, progress: Progress | None = None) -
     np.lib.format.write_array_header_2_0(fp, header)
     done = 0
     total = run.n_replicas * run.n_snapshots
-    for chunk in run.chunks():
+    for chunk in run.chunks(allow_missing=lost is not None):
+        if lost is not None:
+            lost.note(chunk)
         fp.write(np.ascontiguousarray(chunk.mass).tobytes())
         done += chunk.stop - chunk.start
         if progress is not None:

@@ -11,6 +11,7 @@ half-written file is ever left under the destination's name. Inputs are opened r
 
 from __future__ import annotations
 
+import errno
 import os
 import secrets
 import shutil
@@ -19,14 +20,17 @@ from dataclasses import dataclass, field
 from functools import partial
 from pathlib import Path
 
-from ..errors import ArchiveError
+from ..errors import ArchiveError, WriteError
 from ..reader import open_run
 from ..store import local_path
 from ._options import archive_options, understands
-from .registry import Format, Progress, detect_format, get_format
+from .registry import Format, Progress, available_formats, detect_format, get_format
 from .stream import resolve_metadata, write_source
 
 __all__ = ["ConvertReport", "convert", "split_options"]
+
+#: Error numbers of a storage that has no room left for the output.
+_STORAGE_FULL = {errno.ENOSPC, errno.EDQUOT, errno.EFBIG}
 
 
 @dataclass(frozen=True)
@@ -115,8 +119,12 @@ def convert(
     options: Mapping[str, str] | None = None,
     overwrite: bool = False,
     progress: Progress | None = None,
+    allow_missing: bool = False,
 ) -> ConvertReport:
     """Convert ``src`` to ``dst``.
+
+    ``allow_missing``: exporting an archive, write the snapshots of missing or corrupt
+    chunks as an explicit mask (formats whose ``masks`` is true) instead of failing.
 
     >>> convert("run.npz", "run.zarr", meta="meta.toml")    # doctest: +SKIP
     ConvertReport(source='run.npz', destination='run.zarr', source_format='npz', ...)
@@ -129,6 +137,16 @@ def convert(
     if not writer.writable:
         raise ArchiveError(f"format {writer.name} cannot be written; it is read-only")
     read_options, write_options = split_options(options or {}, reader, writer)
+    if allow_missing and (reader.name != "zarr" or not writer.masks):
+        maskers = ", ".join(sorted(f.name for f in _maskers()))
+        what = (
+            f"format {writer.name} cannot carry a mask of missing snapshots"
+            if reader.name == "zarr"
+            else f"it applies to an export from an archive, not to reading {reader.name}"
+        )
+        raise ArchiveError(
+            f"{os.fspath(dst)}: --allow-missing: {what}; expected an export to one of {maskers}"
+        )
     dst_text = os.fspath(dst)
     dst_path = local_path(dst_text)
     src_path = local_path(os.fspath(src))
@@ -162,6 +180,8 @@ def convert(
             else:
                 into_archive(staging, write_options={}, overwrite=False)
                 run = open_run(staging)
+            if allow_missing:  # only formats that declare masks get the keyword
+                write_options = {**write_options, "allow_missing": True}  # type: ignore[dict-item]
             notes = writer.write(run, tmp, progress=progress, **write_options)
             report = ConvertReport(
                 os.fspath(src),
@@ -174,12 +194,34 @@ def convert(
                 list(notes),
             )
         _place(tmp, dst_path)
+    except WriteError as exc:
+        _remove(tmp)
+        raise WriteError(
+            f"{dst_text}: {exc.reason}; nothing was written (the partial output was removed)",
+            exc.reason,
+            exc.errno,
+        ) from exc
+    except OSError as exc:  # an export's own file writes (text, HDF5, ...)
+        _remove(tmp)
+        if exc.errno not in _STORAGE_FULL:
+            raise
+        reason = exc.strerror or str(exc)
+        reason = reason[:1].lower() + reason[1:]
+        raise WriteError(
+            f"{dst_text}: {reason}; nothing was written (the partial output was removed)",
+            reason,
+            exc.errno,
+        ) from exc
     except BaseException:
         _remove(tmp)
         raise
     finally:
         _remove(staging)
     return report
+
+
+def _maskers() -> list[type[Format]]:
+    return [f for f in available_formats().values() if f.writable and f.masks]
 
 
 def _to_archive(

@@ -217,6 +217,7 @@ class CsvLongFormat(Format):
     suffixes = (".csv", ".long.csv")
     description = "CSV, a row per occupied site: replica,time,site,mass (2-D: y,x for site)"
     writable = True
+    masks = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
         cols = csv_columns(head)
@@ -227,17 +228,23 @@ class CsvLongFormat(Format):
         return CsvLongSource(Path(path))
 
     def write(
-        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+        self,
+        run: Run,
+        path: Path,
+        *,
+        progress: Progress | None = None,
+        allow_missing: bool = False,
+        **options: str,
     ) -> list[str]:
         guard_options(options, self.write_options, "writing csv-long")
         lattice = run.sites
         header = "replica,time," + ("site" if len(lattice) == 1 else "y,x") + ",mass\n"
-        export_lines(
+        return export_lines(
             run,
             path,
             meta_comment(run) + header,
             partial(_row_lines, lattice),
             progress,
             replica_lines=False,
+            allow_missing=allow_missing,
         )
-        return []

@@ -90,6 +90,7 @@ class CsvWideFormat(Format):
     suffixes = (".wide.csv",)
     description = "CSV, a row per snapshot: replica,time,m0,m1,... (one column per site)"
     writable = True
+    masks = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
         cols = csv_columns(head)
@@ -100,12 +101,23 @@ class CsvWideFormat(Format):
         return CsvWideSource(Path(path))
 
     def write(
-        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+        self,
+        run: Run,
+        path: Path,
+        *,
+        progress: Progress | None = None,
+        allow_missing: bool = False,
+        **options: str,
     ) -> list[str]:
         guard_options(options, self.write_options, "writing csv-wide")
         volume = int(np.prod(run.sites))
         header = "replica,time," + ",".join(f"m{k}" for k in range(volume)) + "\n"
-        export_lines(
-            run, path, meta_comment(run) + header, _row_lines, progress, replica_lines=False
+        return export_lines(
+            run,
+            path,
+            meta_comment(run) + header,
+            _row_lines,
+            progress,
+            replica_lines=False,
+            allow_missing=allow_missing,
         )
-        return []

@@ -27,6 +27,7 @@ from ..errors import DataError
 from ..reader import Run
 from ._arrays import array_batches
 from ._axes import axes_for, lattice_axes, parse_axes, times_for
+from ._export import MASK, MissingMask, guard_mask
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
 from ._options import guard_options
 from ._signatures import HDF5_MAGIC
@@ -50,6 +51,8 @@ class HDF5Source(Source):
         key = options.get("mass", "mass")
         self.mass = self._dataset(key, "mass")
         self.label = f"{self.name}: dataset {self.mass.name}"
+        if key == "mass" and MASK in self.file:
+            guard_mask(self._dataset(MASK, MASK)[()], self.name)
         self.dtype = self.mass.dtype if self.mass.dtype.kind == "u" else None
 
     def _dataset(self, key: str, what: str) -> Any:
@@ -134,6 +137,7 @@ class HDF5Format(Format):
     }
     write_options: ClassVar[dict[str, str]] = {"compression": "gzip (default), lzf or none"}
     writable = True
+    masks = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
         return head.startswith(HDF5_MAGIC)
@@ -143,7 +147,13 @@ class HDF5Format(Format):
         return HDF5Source(Path(path), dict(options))
 
     def write(
-        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+        self,
+        run: Run,
+        path: Path,
+        *,
+        progress: Progress | None = None,
+        allow_missing: bool = False,
+        **options: str,
     ) -> list[str]:
         import h5py
 
@@ -172,9 +182,13 @@ class HDF5Format(Format):
                     f.create_dataset(key, data=val)
             if run.meta is not None:
                 f.attrs[META_ATTR] = meta_json(run.meta)
-            for chunk in run.chunks():
+            lost = MissingMask(run)
+            for chunk in run.chunks(allow_missing=allow_missing):
+                lost.note(chunk)
                 ds[chunk.replica, chunk.start : chunk.stop] = chunk.mass
                 done += chunk.stop - chunk.start
                 if progress is not None:
                     progress(done, total, "snapshots")
-        return []
+            if allow_missing:
+                f.create_dataset(MASK, data=lost.mask)
+        return lost.notes(f"the dataset {MASK!r}")

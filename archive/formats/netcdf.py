@@ -26,9 +26,10 @@ from massarc.schema import RunMeta
 from massarc.schema.spec import INFLOW, OUTFLOW
 
 from ..errors import DataError
-from ..reader import Run
+from ..reader import Chunk, Run
 from ._arrays import array_batches
 from ._axes import lattice_axes, times_for
+from ._export import MASK, MissingMask, guard_mask
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
 from ._options import guard_options
 from ._signatures import HDF5_MAGIC, NETCDF_CLASSIC_MAGIC
@@ -69,6 +70,8 @@ class NetCDFSource(Source):
         self.var_name = self._pick()
         self.var = self.ds[self.var_name]
         self.label = f"{self.name}: variable {self.var_name!r}"
+        if self.var_name == "mass" and MASK in self.ds.variables:
+            guard_mask(self.ds[MASK].values, self.name)
         self.dtype = self.var.dtype if self.var.dtype.kind == "u" else None
 
     def _pick(self) -> str:
@@ -173,6 +176,7 @@ class NetCDFFormat(Format):
     }
     write_options: ClassVar[dict[str, str]] = {"compression": "gzip (default) or none"}
     writable = True
+    masks = True
     #: A NetCDF-4 file is an HDF5 file too; this sniff is the more specific one.
     sniff_priority = 1
 
@@ -193,9 +197,14 @@ class NetCDFFormat(Format):
         return NetCDFSource(Path(path), dict(options))
 
     def write(
-        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+        self,
+        run: Run,
+        path: Path,
+        *,
+        progress: Progress | None = None,
+        allow_missing: bool = False,
+        **options: str,
     ) -> list[str]:
-        import dask.array as da
         import xarray as xr
 
         guard_options(options, self.write_options, "writing netcdf")
@@ -206,8 +215,10 @@ class NetCDFFormat(Format):
         dims = ("replica", "time", *lattice_axes(len(lattice)))
         tc = max(1, min(run.chunk_snapshots, run.n_snapshots))
         chunks = (1, tc, *lattice)
-        mass = da.from_array(run.mass, chunks=chunks)[: run.n_replicas, : run.n_snapshots]
+        mass, mask, lost = _checked_blocks(run, allow_missing)
         data: dict[str, Any] = {"mass": (dims, mass, {"long_name": "mass per site"})}
+        if allow_missing:
+            data[MASK] = (("replica", "time"), mask, {"long_name": "true: not data"})
         for key in (INFLOW, OUTFLOW):
             val = run.series(key)
             if val is not None:
@@ -227,4 +238,57 @@ class NetCDFFormat(Format):
             progress(
                 run.n_replicas * run.n_snapshots, run.n_replicas * run.n_snapshots, "snapshots"
             )
-        return []
+        return _notes(run, lost)
+
+
+def _checked_blocks(run: Run, allow_missing: bool) -> tuple[Any, Any, list[Chunk]]:
+    """``mass`` ``(replica, time, *lattice)`` and ``mask`` ``(replica, time)`` as dask
+    arrays read chunk by chunk through the checked reader (a missing or corrupt chunk stops
+    the export naming it, or with ``allow_missing`` reads as zeros under the mask; zarr
+    alone would give the fill value), and the list the missing chunks are added to."""
+    import dask
+    import dask.array as da
+
+    from .._chunk_read import ChunkReader, missing_chunks, read_checked
+
+    refs = run.chunk_refs()
+    reader = ChunkReader(run)
+    absent = {} if reader.direct else missing_chunks(run, refs)
+    lost: list[Chunk] = []
+
+    def read(i: int) -> Chunk:
+        chunk = read_checked(reader, refs[i], absent.get(i), allow_missing=allow_missing)
+        if chunk.missing is not None:
+            lost.append(chunk)
+        return chunk
+
+    rows: dict[int, tuple[list[Any], list[Any]]] = {}
+    for i, ref in enumerate(refs):
+        n = ref.stop - ref.start
+        chunk = dask.delayed(read)(i)
+        masses, masks = rows.setdefault(ref.replica, ([], []))
+        masses.append(
+            da.from_delayed(
+                dask.delayed(lambda c: c.mass[None])(chunk), (1, n, *run.sites), run.dtype
+            )
+        )
+        masks.append(
+            da.from_delayed(
+                dask.delayed(lambda c, n=n: np.full((1, n), c.missing is not None))(chunk),
+                (1, n),
+                bool,
+            )
+        )
+    if not rows:
+        empty = (run.n_replicas, run.n_snapshots)
+        return da.zeros((*empty, *run.sites), run.dtype), da.zeros(empty, bool), lost
+    mass = da.concatenate([da.concatenate(rows[r][0], axis=1) for r in sorted(rows)], axis=0)
+    mask = da.concatenate([da.concatenate(rows[r][1], axis=1) for r in sorted(rows)], axis=0)
+    return mass, mask, lost
+
+
+def _notes(run: Run, lost: list[Chunk]) -> list[str]:
+    record = MissingMask(run)
+    for chunk in lost:
+        record.note(chunk)
+    return record.notes(f"the variable {MASK!r}")

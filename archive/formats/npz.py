@@ -30,6 +30,7 @@ from ..errors import DataError
 from ..reader import Run
 from ._arrays import SequentialArray, array_batches
 from ._axes import axes_for, times_for
+from ._export import MASK, MissingMask, guard_mask
 from ._metadata import meta_json, metadata_from_json
 from ._npy_stream import read_npy_header, write_npy_stream
 from ._options import as_bool, guard_options
@@ -53,6 +54,8 @@ class NpzSource(Source):
         except (zipfile.BadZipFile, OSError) as exc:
             raise DataError(f"{self.name}: not a readable .npz (zip) file ({exc})") from None
         self.members = {n[:-4]: n for n in self.zf.namelist() if n.endswith(".npy")}
+        if MASK in self.members:
+            guard_mask(self._small(MASK), self.name)
         self.mass_name = options.get("mass", "mass")
         if self.mass_name not in self.members:
             have = ", ".join(self.members) or "none"
@@ -158,6 +161,7 @@ class NpzFormat(Format):
         "compress": "deflate the arrays (default false: memory-mappable)"
     }
     writable = True
+    masks = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
         if not head.startswith(ZIP_MAGIC) or len(head) < _LOCAL_HEADER.size:
@@ -171,7 +175,13 @@ class NpzFormat(Format):
         return NpzSource(Path(path), dict(options))
 
     def write(
-        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+        self,
+        run: Run,
+        path: Path,
+        *,
+        progress: Progress | None = None,
+        allow_missing: bool = False,
+        **options: str,
     ) -> list[str]:
         guard_options(options, self.write_options, "writing npz")
         deflate = as_bool(options.get("compress", "false"), "compress")
@@ -183,10 +193,13 @@ class NpzFormat(Format):
                 small[key] = val
         if run.meta is not None:
             small["metadata"] = np.array(meta_json(run.meta))
+        lost = MissingMask(run) if allow_missing else None
         with zipfile.ZipFile(path, "w", compression=method, allowZip64=True) as zf:
             with zf.open("mass.npy", "w", force_zip64=True) as fp:
-                write_npy_stream(fp, run, progress)
+                write_npy_stream(fp, run, progress, lost)
+            if lost is not None:
+                small[MASK] = lost.mask
             for key, val in small.items():
                 with zf.open(f"{key}.npy", "w", force_zip64=True) as fp:
                     np.lib.format.write_array(fp, np.asarray(val), allow_pickle=False)
-        return []
+        return lost.notes(f"the array {MASK!r}") if lost is not None else []

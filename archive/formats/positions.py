@@ -98,6 +98,7 @@ class PositionsFormat(Format):
     suffixes = (".pos", ".positions.txt")
     description = "particle positions: a line per snapshot, the time then each particle's site"
     writable = True
+    masks = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
         return magic_of(head) == MAGIC
@@ -107,8 +108,20 @@ class PositionsFormat(Format):
         return PositionsSource(Path(path))
 
     def write(
-        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+        self,
+        run: Run,
+        path: Path,
+        *,
+        progress: Progress | None = None,
+        allow_missing: bool = False,
+        **options: str,
     ) -> list[str]:
         guard_options(options, self.write_options, "writing positions")
-        export_lines(run, path, header_lines(MAGIC, run), positions_lines, progress)
-        return []
+        return export_lines(
+            run,
+            path,
+            header_lines(MAGIC, run),
+            positions_lines,
+            progress,
+            allow_missing=allow_missing,
+        )

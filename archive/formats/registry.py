@@ -162,6 +162,10 @@ class Format(ABC):
         ``{option: help}`` understood by :meth:`read` and :meth:`write`.
     readable, writable
         What the format implements.
+    masks
+        :meth:`write` accepts ``allow_missing=True`` (``massarc convert --allow-missing``):
+        it then writes snapshots it cannot read (missing or corrupt chunks) as an explicit
+        mask, never as masses; ``convert`` refuses ``--allow-missing`` for other formats.
     """
 
     name: ClassVar[str]
@@ -171,6 +175,7 @@ class Format(ABC):
     write_options: ClassVar[Mapping[str, str]] = {}
     readable: ClassVar[bool] = True
     writable: ClassVar[bool] = False
+    masks: ClassVar[bool] = False
     #: Among formats whose sniff matches the same file, the most specific wins.
     sniff_priority: ClassVar[int] = 0
 

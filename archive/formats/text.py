@@ -99,6 +99,7 @@ class TextFormat(Format):
     suffixes = (".txt", ".dat", ".text")
     description = "plain text: a line per snapshot (time, then the site masses), '# replica N'"
     writable = True
+    masks = True
 
     def sniff(self, head: bytes, path: Path) -> bool:
         magic = magic_of(head)
@@ -111,11 +112,23 @@ class TextFormat(Format):
         return TextSource(Path(path))
 
     def write(
-        self, run: Run, path: Path, *, progress: Progress | None = None, **options: str
+        self,
+        run: Run,
+        path: Path,
+        *,
+        progress: Progress | None = None,
+        allow_missing: bool = False,
+        **options: str,
     ) -> list[str]:
         guard_options(options, self.write_options, "writing text")
-        export_lines(run, path, header_lines(TEXT_MAGIC, run), _text_lines, progress)
-        notes = []
+        notes = export_lines(
+            run,
+            path,
+            header_lines(TEXT_MAGIC, run),
+            _text_lines,
+            progress,
+            allow_missing=allow_missing,
+        )
         if run.series("inflow") is not None or run.series("outflow") is not None:
             notes.append("text does not carry inflow/outflow; use .npz, .h5 or .nc for them")
         return notes

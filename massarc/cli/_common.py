@@ -5,6 +5,7 @@ one another."""
 from __future__ import annotations
 
 import sys
+import traceback
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from typing import Any, NoReturn, TypeVar
@@ -22,6 +23,7 @@ __all__ = [
     "die",
     "key_values",
     "metadata_options",
+    "one_line",
     "progress_bar",
     "rendering_option",
     "scheduler_option",
@@ -35,12 +37,27 @@ _LONGEST = 2000
 _F = TypeVar("_F", bound=Callable[..., Any])
 
 
+def one_line(message: str) -> str:
+    """``message`` on one line, cut after 2000 characters (with the length given)."""
+    text = " ".join(str(message).split())
+    if len(text) > _LONGEST:  # a safety net: messages quote inputs, cut at the source
+        text = f"{text[:_LONGEST]}... ({len(text)} characters)"
+    return text
+
+
+def _debugging() -> bool:
+    ctx = click.get_current_context(silent=True)
+    return bool(ctx is not None and ctx.find_root().params.get("debug"))
+
+
 def die(command: str, message: str) -> NoReturn:
-    """Print ``massarc COMMAND: error: MESSAGE`` (one line) to stderr and exit with status 2."""
-    one_line = " ".join(str(message).split())
-    if len(one_line) > _LONGEST:  # a safety net: messages quote inputs, cut at the source
-        one_line = f"{one_line[:_LONGEST]}... ({len(one_line)} characters)"
-    click.echo(f"massarc {command}: error: {one_line}", err=True)
+    """Print ``massarc COMMAND: error: MESSAGE`` (one line) to stderr and exit with status 2.
+
+    Under ``massarc --debug`` the traceback of the exception being handled, if any, comes
+    first."""
+    if _debugging() and sys.exc_info()[0] is not None:
+        traceback.print_exc()
+    click.echo(f"massarc {command}: error: {one_line(message)}", err=True)
     sys.exit(EXIT_BAD_INPUT)
 
 

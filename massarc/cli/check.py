@@ -118,9 +118,17 @@ def command(
     if not runs:
         die(_NAME, "expected at least one RUN_OR_COLLECTION; got none")
     try:
-        settings = resolve_settings(config=config, skip=skip, only=only, strict=strict, sets=sets)
+        settings = resolve_settings(
+            config=config, skip=skip, only=only, strict=strict, sets=sets, runs=runs
+        )
     except ConfigError as exc:
         die(_NAME, str(exc))
+    for path in settings.ignored:
+        click.echo(
+            f"massarc {_NAME}: warning: ignored {path}: a configuration file inside the audited "
+            "runs never sets the audit rules (use --config to choose one)",
+            err=True,
+        )
     opened = []
     with bad_input(_NAME):
         for location in runs:
@@ -140,6 +148,8 @@ def command(
                 workers=workers,
                 config=settings.source,
                 scheduler=dask_scheduler,
+                origins=settings.origins,
+                ignored=settings.ignored,
             )
         except ConfigError as exc:
             die(_NAME, str(exc))

@@ -49,6 +49,12 @@ def _list_formats() -> None:
     help="A format option (repeatable; from.KEY / to.KEY pick the side).",
 )
 @click.option("--overwrite", is_flag=True, help="Replace an existing DST.")
+@click.option(
+    "--allow-missing",
+    is_flag=True,
+    help="Export an archive with missing or corrupt chunks: their snapshots are marked in "
+    "an explicit mask (see docs/formats.md) instead of failing.",
+)
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar, no notes.")
 @click.option("--list-formats", is_flag=True, help="List the known formats and exit.")
 def command(
@@ -60,6 +66,7 @@ def command(
     dst_format: str | None,
     options: tuple[str, ...],
     overwrite: bool,
+    allow_missing: bool,
     quiet: bool,
     list_formats: bool,
 ) -> None:
@@ -82,6 +89,7 @@ def command(
         "overrides": overrides,
         "options": key_values(options, "convert"),
         "overwrite": overwrite,
+        "allow_missing": allow_missing,
     }
     with bad_input("convert"):
         members = collection_members(src) if src_format in (None, "zarr") else None

@@ -32,7 +32,7 @@ from massarc.schema.spec import ARCHIVE_MAJOR, ATTRIBUTE_KEY, parse_version
 from massarc.schema.sweep import sweep_point
 from massarc.schema.version import __version__
 
-from ..report.model import AuditReport, RunReport
+from ..report.model import AuditReport, OptionSetting, RunReport
 from .registry import Check, CheckContext, available_checks
 from .result import CheckResult, worst
 from .settings import ConfigError, parse_options
@@ -232,6 +232,8 @@ def audit(
     workers: int | None = None,
     config: str | None = None,
     scheduler: Any = None,
+    origins: Mapping[str, Mapping[str, str]] | None = None,
+    ignored: Iterable[str] = (),
 ) -> AuditReport:
     """Audit runs (``Run`` objects or locations of runs and collections).
 
@@ -255,6 +257,11 @@ def audit(
         A Dask scheduler (:class:`~massarc.archive.distributed.Scheduler` or its name):
         each run's pass runs there as a graph, the runs in parallel (default: the local
         pass, one run after the other). Same results.
+    origins
+        ``{check id: {option: where its value came from}}`` (a file, ``--set``), recorded
+        in the report for every option in ``options``; ``options`` where not given.
+    ignored
+        Configuration files found inside the audited runs and not read (recorded).
 
     Raises :class:`~massarc.archive.ArchiveError` for a location that is not a readable
     run, and :class:`~massarc.validators.engine.settings.ConfigError` for unknown ids or
@@ -266,6 +273,17 @@ def audit(
     classes = [registry[c] for c in chosen if c not in skipped]
     settings = parse_options(dict(options or {}), registry, "options")
     merged = {cls.id: cls.option_values(settings.get(cls.id)) for cls in classes}
+    set_options = [
+        OptionSetting(
+            check=cid,
+            option=name,
+            value=value,
+            default=registry[cid].options[name].default,
+            source=(origins or {}).get(cid, {}).get(name, "options"),
+        )
+        for cid, opts in settings.items()
+        for name, value in opts.items()
+    ]
     opened: list[Run] = []
     for item in runs:
         opened.extend([item] if isinstance(item, Run) else open_for_audit(item))
@@ -301,4 +319,6 @@ def audit(
         strict=strict,
         seconds=time.perf_counter() - started,
         config=config,
+        options=set_options,
+        ignored=list(ignored),
     )

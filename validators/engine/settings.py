@@ -13,17 +13,22 @@ one directory). Only one file is read, and the report names it. Keys::
     [tool.massarc.checks.conservation]
     tolerance = 0                    # per-check options (see ``massarc check --list``)
 
-The settings record where each option was set (``origins``: the file, or ``--set``), so
-that a report can say where every threshold it was judged by came from.
 Command-line options override the file: ``--strict``/``--no-strict`` replace ``strict``,
 ``--skip`` adds to ``skip``, ``--only`` runs exactly the checks it names (even those the
 file skips), and
 ``--set ID.OPTION=VALUE`` replaces one option. Unknown check ids, option names or keys
 are errors naming the file and key.
+
+Given the locations audited, :func:`resolve_settings` also lists the configuration files
+found inside those runs and collections (:func:`travelling_configs`; a file the upward
+search would find there is passed over too): they are ignored, and the report and the
+command line name each one. ``origins`` records where every option that is not its default
+came from (the file, or ``--set``).
 """
 
 from __future__ import annotations
 
+import os
 import tomllib
 from collections.abc import Iterable, Mapping
 from pathlib import Path
@@ -31,6 +36,7 @@ from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from massarc.archive.store import local_path
 from massarc.schema import MetadataError, apply_overrides
 
 from .registry import Check, Option, available_checks
@@ -44,6 +50,7 @@ __all__ = [
     "parse_options",
     "parse_settings",
     "resolve_settings",
+    "travelling_configs",
 ]
 
 #: Name of a project's own configuration file (looked for from the current directory up).
@@ -67,7 +74,10 @@ class AuditSettings(BaseModel):
     source: str | None = Field(None, description="The file the settings came from.")
     origins: dict[str, dict[str, str]] = Field(
         default_factory=dict,
-        description="Where each option in `options` was set: the file's path or `--set`.",
+        description="check id -> option -> where its value came from (a file or --set).",
+    )
+    ignored: tuple[str, ...] = Field(
+        (), description="Configuration files inside the audited runs and collections, not read."
     )
 
 
@@ -188,19 +198,63 @@ def _has_tool_table(path: Path) -> bool:
     return isinstance(tool, Mapping) and "massarc" in tool
 
 
-def find_config(cwd: str | Path | None = None) -> Path | None:
+def _configs_in(d: Path) -> list[Path]:
+    """``massarc.toml``, and ``pyproject.toml`` with ``[tool.massarc]``, directly in ``d``."""
+    found = []
+    own = d / FILE_NAME
+    if own.is_file():
+        found.append(own)
+    candidate = d / "pyproject.toml"
+    if candidate.is_file() and _has_tool_table(candidate):
+        found.append(candidate)
+    return found
+
+
+def find_config(
+    cwd: str | Path | None = None, exclude: Iterable[Path] = (), passed: list[Path] | None = None
+) -> Path | None:
     """The configuration file of the auditor's project: the nearest ``massarc.toml``, or
     ``pyproject.toml`` with ``[tool.massarc]``, from ``cwd`` (default: the current
-    directory) upward; None if there is none. The runs' own folders are never searched."""
+    directory) upward; None if there is none. A file inside one of the directories
+    ``exclude`` (the audited runs and collections) is passed over, and appended to
+    ``passed``: the search goes on above them."""
     here = Path(cwd) if cwd is not None else Path.cwd()
+    fenced = [Path(e).resolve() for e in exclude]
     for d in (here.resolve(), *here.resolve().parents):
-        own = d / FILE_NAME
-        if own.is_file():
-            return own
-        candidate = d / "pyproject.toml"
-        if candidate.is_file() and _has_tool_table(candidate):
+        for candidate in _configs_in(d):
+            if any(d == f or f in d.parents for f in fenced):
+                if passed is not None:
+                    passed.append(candidate)
+                continue
             return candidate
     return None
+
+
+def _audited_dirs(locations: Iterable[Any]) -> list[Path]:
+    out = []
+    for location in locations:
+        path = local_path(location) if isinstance(location, str | os.PathLike) else None
+        if path is not None and path.is_dir():
+            out.append(path)
+    return out
+
+
+def travelling_configs(locations: Iterable[Any]) -> list[Path]:
+    """Configuration files that travel with the runs: in each audited local directory (a run
+    or a collection) and in the directories below a collection down to its runs (the walk
+    does not enter a Zarr node below the top). None of them is ever read.
+
+    >>> travelling_configs(["samples/depot-ring.zarr"])
+    []
+    """
+    found: list[Path] = []
+    for root in _audited_dirs(locations):
+        for here, dirs, files in os.walk(root):
+            dirs.sort()
+            if "zarr.json" in files and Path(here) != root:
+                dirs.clear()
+            found.extend(_configs_in(Path(here)))
+    return list(dict.fromkeys(found))
 
 
 def _parse_sets(items: Iterable[str], checks: Mapping[str, type[Check]]) -> dict:
@@ -227,23 +281,34 @@ def resolve_settings(
     strict: bool | None = None,
     sets: Iterable[str] = (),
     checks: Mapping[str, type[Check]] | None = None,
+    runs: Iterable[Any] = (),
 ) -> AuditSettings:
     """Settings of one ``massarc check`` call: the file that applies, then the command line.
+    ``runs``: the locations audited; configuration files inside them are never read and
+    are listed in ``ignored``.
 
     >>> s = resolve_settings(cwd="/", skip=["schema"], sets=["conservation.tolerance=1"])
     >>> s.skip, s.options
     (('schema',), {'conservation': {'tolerance': 1}})
     """
     checks = available_checks() if checks is None else checks
-    path = Path(config) if config is not None else find_config(cwd)
+    runs = list(runs)
+    passed: list[Path] = []
+    if config is not None:
+        path: Path | None = Path(config)
+    else:
+        path = find_config(cwd, exclude=_audited_dirs(runs), passed=passed)
     if config is not None and not Path(config).is_file():
         raise ConfigError(f"{config}: no such configuration file")
     base = load_settings(path, checks) if path is not None else AuditSettings()
     options = {cid: dict(opts) for cid, opts in base.options.items()}
-    origins = {cid: dict(where) for cid, where in base.origins.items()}
+    origins = {cid: dict.fromkeys(opts, str(path)) for cid, opts in base.options.items()}
     for cid, opts in _parse_sets(sets, checks).items():
         options.setdefault(cid, {}).update(opts)
         origins.setdefault(cid, {}).update(dict.fromkeys(opts, "--set"))
+    used = path.resolve() if path is not None else None
+    found = dict.fromkeys([*passed, *travelling_configs(runs)])
+    ignored = [str(p) for p in found if p.resolve() != used]  # --config may name one: read
     only_ids = _check_ids(only, checks, "--only")
     kept = tuple(cid for cid in base.skip if cid not in only_ids)  # --only names win
     return AuditSettings(
@@ -253,4 +318,5 @@ def resolve_settings(
         options=options,
         source=base.source,
         origins=origins,
+        ignored=tuple(ignored),
     )

@@ -7,11 +7,18 @@ Shape (stable; outside tools rely on it)::
                            "where": {"replica": 2, "snapshot": 1234},
                            "values": {...}, "thresholds": {...}}]}],
      "status": "fail", "strict": false, "massarc_version": "...", ...,
+     "config": "pyproject.toml",
+     "options": [{"check": "conservation", "option": "tolerance", "value": 2,
+                  "default": 0, "source": "--set"}],
+     "ignored": ["sweep/run-3.zarr/massarc.toml"],
      "sweep": [{"run": "...", "family": "zrp", "parameter": "b=4", "density": 0.75,
                 "critical_density": 0.5, "condensed": true, "stationary": "pass",
                 "window_start": 0, "valid": "pass", ...}]}
 
-``sweep`` has one row per run (see :mod:`.sweep`).
+``config`` is the settings file read (null: none); ``options`` lists every check option
+not at its default with where its value came from (the file, ``--set``); ``ignored`` the
+configuration files found inside the audited runs and collections, never read; ``sweep``
+has one row per run (see :mod:`.sweep`).
 
 ``where`` holds only the keys that are set and is left out when there is no location.
 NumPy numbers become JSON numbers; non-finite floats become null.
@@ -80,6 +87,8 @@ def report_dict(report: AuditReport) -> dict[str, Any]:
         "seconds": round(report.seconds, 6),
         "config": report.config,
         "sweep": _plain(sweep_rows(report)),
+        "options": [_plain(o.model_dump()) for o in report.options],
+        "ignored": list(report.ignored),
     }
 
 

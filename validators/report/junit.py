@@ -1,9 +1,14 @@
 """The JUnit XML report: one ``<testsuite>`` per run, one ``<testcase>`` per check.
 
-``classname`` is the run's path and ``name`` the check id. A failed check carries a
+``classname`` is the run's path and ``name`` the check id. Each ``<testsuite>`` starts
+with ``<properties>`` saying where the rules came from: ``massarc.config`` (the settings
+file, or ``none``), ``massarc.option.ID.OPTION`` = ``VALUE (from SOURCE; default
+DEFAULT)`` for each option not at its default, and ``massarc.ignored`` for each
+configuration file found inside the audited runs and not read. A failed check carries a
 ``<failure>``, one that raised an ``<error>``, a skipped one ``<skipped>`` (the reason as
-its text); a warning passes, with its message in ``<system-out>``. Written with
-:mod:`xml.etree`, so the document is well-formed and escaped whatever the messages hold.
+its text); a warning
+passes, with its message in ``<system-out>``. Written with :mod:`xml.etree`, so the
+document is well-formed and escaped whatever the messages hold.
 It conforms to the JUnit schema CI servers read (the Jenkins JUnit XSD,
 ``tests/fixtures/junit/``).
 """
@@ -30,6 +35,18 @@ def _counts(statuses: list[str], *, skipped: bool = True) -> dict[str, str]:
     return counts
 
 
+def _properties(suite: ET.Element, report: AuditReport) -> None:
+    props = ET.SubElement(suite, "properties")
+    pairs = [("massarc.config", report.config or "none")]
+    for o in report.options:
+        value = json.dumps(_plain(o.value))
+        shown = f"{value} (from {o.source}; default {json.dumps(_plain(o.default))})"
+        pairs.append((f"massarc.option.{o.check}.{o.option}", shown))
+    pairs.extend(("massarc.ignored", path) for path in report.ignored)
+    for name, value in pairs:
+        ET.SubElement(props, "property", {"name": name, "value": value})
+
+
 def report_junit(report: AuditReport) -> str:
     """The report as a JUnit XML document."""
     every = [c.status for r in report.runs for c in r.checks]
@@ -47,6 +64,7 @@ def report_junit(report: AuditReport) -> str:
                 "time": f"{run.seconds:.3f}",
             },
         )
+        _properties(suite, report)
         for c in run.checks:
             case = ET.SubElement(
                 suite,

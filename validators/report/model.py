@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from pydantic import BaseModel, ConfigDict, Field
 
 from massarc.schema.sweep import SweepPoint
 
 from ..engine.result import CheckResult, Status, worst
 
-__all__ = ["AuditReport", "RunReport"]
+__all__ = ["AuditReport", "OptionSetting", "RunReport"]
 
 
 class _Frozen(BaseModel):
@@ -30,6 +32,17 @@ class RunReport(_Frozen):
     point: SweepPoint | None = None
 
 
+class OptionSetting(_Frozen):
+    """A check option the audit did not take from its default, and where it came from:
+    ``source`` is the configuration file, ``--set``, or ``options`` (the ``audit`` call)."""
+
+    check: str
+    option: str
+    value: Any
+    default: Any
+    source: str
+
+
 class AuditReport(_Frozen):
     """One audit of one or more runs.
 
@@ -44,6 +57,10 @@ class AuditReport(_Frozen):
     strict: bool = False
     seconds: float = 0.0
     config: str | None = None
+    #: Every option not at its default, with where it came from.
+    options: list[OptionSetting] = Field(default_factory=list)
+    #: Configuration files inside the audited runs and collections, found and not read.
+    ignored: list[str] = Field(default_factory=list)
 
     @property
     def failed(self) -> bool:

@@ -56,6 +56,19 @@ def _summary(report: AuditReport) -> str:
     return f"{head}; runs: {by_run or 'none'}; checks: {by_check or 'none'}{strict}; {rules}"
 
 
+def _rules(report: AuditReport) -> list[str]:
+    """Where the rules came from: each option not at its default, each file ignored."""
+    lines = [
+        f"option {o.check}.{o.option} = {o.value!r} (from {o.source}; default {o.default!r})"
+        for o in report.options
+    ]
+    lines.extend(
+        f"ignored {path}: a configuration file inside the audited runs never sets the rules"
+        for path in report.ignored
+    )
+    return lines
+
+
 def render_table(report: AuditReport, file: IO[str], *, quiet: bool = False) -> None:
     """Write the table to ``file`` (colour when it is a terminal). ``quiet``: only the
     checks that did not pass, and the summary."""
@@ -78,3 +91,5 @@ def render_table(report: AuditReport, file: IO[str], *, quiet: bool = False) -> 
     if len(report.runs) > 1:  # a collection: one line per run across its parameters
         render_sweep(report, console, STATUS_STYLE)
     console.print(_summary(report), highlight=False)
+    for line in _rules(report):
+        console.print(line, highlight=False, markup=False, soft_wrap=True)  # paths stay whole
