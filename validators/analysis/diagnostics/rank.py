@@ -29,8 +29,6 @@ Steps (section numbers of the paper):
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtri
-from scipy.stats import rankdata
 
 from .autocorr import autocovariance
 
@@ -68,6 +66,9 @@ def split_chains(x: np.ndarray) -> np.ndarray:
 def rank_normalize(x: np.ndarray) -> np.ndarray:
     """Normal scores of the pooled average ranks, Phi^{-1}((r - 3/8) / (S + 1/4))."""
     a = np.asarray(x, dtype=np.float64)
+    from scipy.special import ndtri  # imported when first needed: scipy.stats is slow to load
+    from scipy.stats import rankdata
+
     r = rankdata(a, method="average").reshape(a.shape)
     return ndtri((r - 0.375) / (a.size + 0.25))
 

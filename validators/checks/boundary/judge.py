@@ -86,7 +86,6 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
 from .transfers import AxisTransfers, TransferPlan
 
@@ -314,11 +313,15 @@ class WallTest:
         the critical t plus ``margin``."""
         if not (self.dof > 0 and math.isfinite(self.se)):
             return False
+        from scipy import stats  # imported when first needed: scipy.stats is slow to load
+
         return (RING_CORRELATION - self.rho0) / self.se >= stats.t.isf(alpha, self.dof) + margin
 
 
 def _normal_scores(y: np.ndarray) -> np.ndarray:
     """Columns of ``y`` replaced by the normal scores of their mid-ranks."""
+    from scipy import stats  # imported when first needed: scipy.stats is slow to load
+
     r = stats.rankdata(y, axis=0)
     return stats.norm.ppf(r / (len(y) + 1))
 
@@ -377,6 +380,8 @@ def wall_test(
     mean = float(v.mean())
     se = max(float(v.std(ddof=1) / math.sqrt(m)), 1e-12)
     t = (mean - rho0) / se
+    from scipy import stats  # imported when first needed: scipy.stats is slow to load
+
     p = float(stats.t.sf(t, m - 1))
     return WallTest(bonds, spacing, scale, rho0, mean, se, t, m - 1, p, m)
 

@@ -41,19 +41,14 @@ Options: ``intervals`` (per replica, default 2048).
 from __future__ import annotations
 
 import math
-import os
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
+from massarc.archive._jit import use_numba
 from massarc.archive.reader import Chunk, ChunkRef
 from massarc.archive.scan import ChunkFault, Statistic
-
-try:  # numba is the optional `fast` extra; without it the NumPy path below is used
-    from numba import njit
-except ImportError:  # pragma: no cover - exercised only without numba
-    njit = None
 
 __all__ = [
     "BUDGET",
@@ -216,8 +211,9 @@ def plan_axis(axis: int, length: int) -> TransferPlan | None:
 
 
 def _use_numba() -> bool:
-    """The compiled kernels, unless numba is missing or ``MASSARC_PURE=1``."""
-    return njit is not None and os.environ.get("MASSARC_PURE", "") not in ("1", "true", "yes")
+    """The compiled kernels (:mod:`._compiled`), unless numba is missing or
+    ``MASSARC_PURE=1``."""
+    return use_numba()
 
 
 # -- prefix sums at cut positions ----------------------------------------------------------
@@ -230,54 +226,21 @@ def _prefix_numpy(mass: np.ndarray, rows: np.ndarray, axis: int, positions: np.n
     return np.cumsum(sel, axis=1, dtype=np.int64)[:, positions]
 
 
-if njit is not None:
-
-    @njit(cache=True, nogil=True)
-    def _prefix_rows(mass, rows, positions, out):  # pragma: no cover - compiled
-        for j in range(rows.shape[0]):
-            r = rows[j]
-            acc = np.int64(0)
-            start = 0
-            for p in range(positions.shape[0]):
-                stop = positions[p] + 1
-                s = np.int64(0)
-                for i in range(start, stop):
-                    s += np.int64(mass[r, i])
-                acc += s
-                out[j, p] = acc
-                start = stop
-
-    @njit(cache=True, nogil=True)
-    def _project_rows(mass, rows, axis, out):  # pragma: no cover - compiled
-        ny, nx = mass.shape[1], mass.shape[2]
-        for j in range(rows.shape[0]):
-            r = rows[j]
-            for i in range(out.shape[1]):
-                out[j, i] = 0
-            for y in range(ny):
-                if axis == 1:
-                    for x in range(nx):
-                        out[j, x] += np.int64(mass[r, y, x])
-                else:
-                    s = np.int64(0)
-                    for x in range(nx):
-                        s += np.int64(mass[r, y, x])
-                    out[j, y] = s
-
-
 def prefix_at(mass: np.ndarray, rows: np.ndarray, axis: int, positions: np.ndarray) -> np.ndarray:
     """Prefix sums ``(len(rows), len(positions))`` of the rows of ``mass`` (``(time, L)`` or
     ``(time, Ly, Lx)``, integers) projected on ``axis``."""
     if not _use_numba() or mass.size == 0:
         return _prefix_numpy(mass, rows, axis, positions)
+    from ._compiled import prefix_rows, project_rows  # numba is imported on first use
+
     m = np.ascontiguousarray(mass)
     out = np.empty((len(rows), len(positions)), np.int64)
     if m.ndim == 2:
-        _prefix_rows(m, rows, positions, out)
+        prefix_rows(m, rows, positions, out)
         return out
     proj = np.empty((len(rows), m.shape[1 + axis]), np.int64)
-    _project_rows(m, rows, axis, proj)
-    _prefix_rows(proj, np.arange(len(rows), dtype=np.int64), positions, out)
+    project_rows(m, rows, axis, proj)
+    prefix_rows(proj, np.arange(len(rows), dtype=np.int64), positions, out)
     return out
 
 

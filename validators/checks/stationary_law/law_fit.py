@@ -40,7 +40,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 __all__ = ["LawFit", "fit_law", "merge_bins"]
 
@@ -163,6 +162,8 @@ def fit_law(
     delta = trace / (k - 1)
     f_stat = chi2 / trace
     den = nu * (m - 1)
+    from scipy import stats  # imported when first needed: scipy.stats is slow to load
+
     p_value = float(stats.f.sf(f_stat, nu, den))
     return LawFit(
         chi2=chi2,
