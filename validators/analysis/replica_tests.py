@@ -97,9 +97,9 @@ class MeanTest:
 
     def p_one_sided(self, sign: float) -> float:
         """Tail of the robust score in the direction ``sign`` (+1 or -1)."""
-        from scipy.stats import t as student  # imported when first needed: slow to load
+        from .tails import student_sf  # scipy.special, imported on first use
 
-        return float(student.sf(sign * self.z, max(self.ess - 1.0, 1.0)))
+        return float(student_sf(sign * self.z, max(self.ess - 1.0, 1.0)))
 
 
 def _g(series: list[np.ndarray], c: float) -> float:
@@ -145,9 +145,9 @@ def replica_mean_test(
     ess = n / g
     per = ess / reps
     reliable = bool(per >= 50 or (reps >= 4 and per >= 10))
-    from scipy.stats import t as student  # imported when first needed: slow to load
+    from .tails import student_sf  # scipy.special, imported on first use
 
-    p = float(2 * student.sf(abs(z), max(ess - 1.0, 1.0)))
+    p = float(2 * student_sf(abs(z), max(ess - 1.0, 1.0)))
     return MeanTest(mean, se, float(z), p, n, g, ess, reps, spread, reliable)
 
 

@@ -158,9 +158,9 @@ class ExactLargestMass:
 def fisher(p: list[float]) -> float:
     """Fisher's combination of independent p-values: chi2_{2R} tail of -2 sum log p."""
     x = -2.0 * sum(math.log(max(v, 1e-300)) for v in p)
-    from scipy.stats import chi2  # imported when first needed: scipy.stats is slow to load
+    from .tails import chi2_sf  # scipy.special, imported on first use
 
-    return float(chi2.sf(x, 2 * len(p)))
+    return chi2_sf(x, 2 * len(p))
 
 
 def snapshot_law(

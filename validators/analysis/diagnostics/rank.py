@@ -66,11 +66,10 @@ def split_chains(x: np.ndarray) -> np.ndarray:
 def rank_normalize(x: np.ndarray) -> np.ndarray:
     """Normal scores of the pooled average ranks, Phi^{-1}((r - 3/8) / (S + 1/4))."""
     a = np.asarray(x, dtype=np.float64)
-    from scipy.special import ndtri  # imported when first needed: scipy.stats is slow to load
-    from scipy.stats import rankdata
+    from ..tails import average_ranks, normal_ppf  # scipy.special, imported on first use
 
-    r = rankdata(a, method="average").reshape(a.shape)
-    return ndtri((r - 0.375) / (a.size + 0.25))
+    r = average_ranks(a).reshape(a.shape)
+    return normal_ppf((r - 0.375) / (a.size + 0.25))
 
 
 def rhat_basic(x: np.ndarray) -> float:

@@ -121,9 +121,9 @@ def trend_test(y: np.ndarray, c: float = SOKAL_C) -> TrendTest:
     stouffer = float(scores.sum() / np.sqrt(reps))
     spread = float(np.std(scores, ddof=1)) if reps > 1 else float("nan")
     z = stouffer / max(1.0, spread) if reps > 1 else stouffer
-    from scipy.stats import norm  # imported when first needed: it is slow to load
+    from ..tails import normal_sf  # scipy.special, imported on first use
 
-    p = float(2.0 * norm.sf(abs(z)))
+    p = float(2.0 * normal_sf(abs(z)))
     common = a - a.mean() - float(a.mean(axis=0) @ k / sxx) * k  # the common line removed
     ess = ess_bulk(common) if n >= 4 else float(reps)
     per_chain = ess / reps

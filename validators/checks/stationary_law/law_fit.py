@@ -162,9 +162,9 @@ def fit_law(
     delta = trace / (k - 1)
     f_stat = chi2 / trace
     den = nu * (m - 1)
-    from scipy import stats  # imported when first needed: scipy.stats is slow to load
+    from ...analysis.tails import f_sf  # scipy.special, imported on first use
 
-    p_value = float(stats.f.sf(f_stat, nu, den))
+    p_value = f_sf(f_stat, nu, den)
     return LawFit(
         chi2=chi2,
         dof=k - 1,
