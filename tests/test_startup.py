@@ -47,16 +47,36 @@ def test_check_list_imports_neither_scipy_nor_numba() -> None:
     assert _imported_after(code) == []
 
 
-def test_a_json_audit_of_a_small_run_without_numba_paths_imports_no_numba() -> None:
-    # MASSARC_PURE: the NumPy twins; scipy comes in with the statistical checks that need it
+def test_a_json_audit_of_a_small_run_imports_no_numba() -> None:
+    # below SMALL_RUN_BYTES the statistics use their NumPy twins unless MASSARC_PURE=0 asks
+    # for the kernels; scipy comes in with the statistical checks, but not scipy.stats
     code = (
-        "import os\nos.environ['MASSARC_PURE'] = '1'\n"
+        "import os\nos.environ.pop('MASSARC_PURE', None)\n"
         "from massarc.validators import audit, render\n"
-        "render(audit(['samples/depot-ring.zarr']), 'json')"
+        "report = audit(['samples/depot-ring.zarr'])\n"
+        "assert {c.id for c in report.runs[0].checks if c.status != 'error'} >= {'drift'}\n"
+        "render(report, 'json')\n"
+        "import sys\nassert 'scipy.stats' not in sys.modules"
     )
     loaded = _imported_after(code)
     assert "numba" not in loaded and "rich" not in loaded
     assert "scipy" in loaded  # the statistical checks did run
+
+
+def test_the_kernels_are_chosen_by_run_size(monkeypatch: pytest.MonkeyPatch) -> None:
+    from types import SimpleNamespace
+
+    from massarc.archive import _jit
+
+    monkeypatch.delenv("MASSARC_PURE", raising=False)
+    small = SimpleNamespace(nbytes=_jit.SMALL_RUN_BYTES - 1)
+    large = SimpleNamespace(nbytes=_jit.SMALL_RUN_BYTES)
+    assert _jit.backend_for(small) == "numpy"
+    assert _jit.backend_for(large) == ("numba" if HAVE_NUMBA else "numpy")
+    monkeypatch.setenv("MASSARC_PURE", "0")
+    assert _jit.backend_for(small) == ("numba" if HAVE_NUMBA else "numpy")
+    monkeypatch.setenv("MASSARC_PURE", "1")
+    assert _jit.backend_for(large) == "numpy"
 
 
 @pytest.mark.skipif(not HAVE_NUMBA, reason="numba is not installed")

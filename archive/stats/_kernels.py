@@ -43,6 +43,8 @@ class Plan:
     sentinel: int | None = None
     bins: int = 0
     edges: np.ndarray | None = None
+    #: ``"numba"``, ``"numpy"`` or None (:func:`use_numba`), for :func:`reduce_chunk`.
+    backend: str | None = None
 
 
 @dataclass
@@ -165,7 +167,7 @@ def reduce_rows(x: np.ndarray, start: int, plan: Plan, *, backend: str | None = 
     xi, first_frac, n_frac = _integer_rows(x2)
     sentinel_plan = plan
     if plan.sentinel is not None and x2.dtype.kind != xi.dtype.kind:
-        sentinel_plan = Plan(None, plan.bins, plan.edges)  # floats have no sentinel
+        sentinel_plan = Plan(None, plan.bins, plan.edges, plan.backend)  # floats: no sentinel
     if plan.bins:
         hist_first, groups = _groups(plan, start, xi.shape[0])
         nblocks = int(groups[-1]) + 1 if len(groups) else 0
@@ -193,6 +195,6 @@ def reduce_chunk(chunk: object, plan: Plan) -> Reduction:
     ref = getattr(_MEMO, "chunk", None)
     if ref is not None and ref() is chunk and _MEMO.plan is plan:
         return _MEMO.result
-    result = reduce_rows(chunk.mass, chunk.start, plan)
+    result = reduce_rows(chunk.mass, chunk.start, plan, backend=plan.backend)
     _MEMO.chunk, _MEMO.plan, _MEMO.result = weakref.ref(chunk), plan, result
     return result

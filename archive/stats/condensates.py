@@ -28,6 +28,7 @@ import numpy as np
 
 from massarc.schema.laws import critical_density
 
+from .._jit import backend_for
 from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic
 from ._kernels import HAVE_NUMBA, _integer_rows, use_numba
@@ -134,9 +135,10 @@ class CondensateStatistic(Statistic):
         self._count = np.full(shape, -1, np.int64)
         self._mass = np.full(shape, -1, np.int64)
         self._valid = np.zeros(shape, bool)
+        self.backend = backend_for(run)
 
     def chunk(self, block: Chunk) -> Any:
-        return count_above(block.mass, self.above)
+        return count_above(block.mass, self.above, backend=self.backend)
 
     def merge(self, ref: ChunkRef, partial: Any) -> None:
         sl = (ref.replica, slice(ref.start, ref.stop))

@@ -46,7 +46,7 @@ from typing import Any
 
 import numpy as np
 
-from massarc.archive._jit import use_numba
+from massarc.archive._jit import backend_for, use_numba
 from massarc.archive.reader import Chunk, ChunkRef
 from massarc.archive.scan import ChunkFault, Statistic
 
@@ -226,10 +226,18 @@ def _prefix_numpy(mass: np.ndarray, rows: np.ndarray, axis: int, positions: np.n
     return np.cumsum(sel, axis=1, dtype=np.int64)[:, positions]
 
 
-def prefix_at(mass: np.ndarray, rows: np.ndarray, axis: int, positions: np.ndarray) -> np.ndarray:
+def prefix_at(
+    mass: np.ndarray,
+    rows: np.ndarray,
+    axis: int,
+    positions: np.ndarray,
+    backend: str | None = None,
+) -> np.ndarray:
     """Prefix sums ``(len(rows), len(positions))`` of the rows of ``mass`` (``(time, L)`` or
-    ``(time, Ly, Lx)``, integers) projected on ``axis``."""
-    if not _use_numba() or mass.size == 0:
+    ``(time, Ly, Lx)``, integers) projected on ``axis``; ``backend`` is ``"numba"``,
+    ``"numpy"`` or None (:func:`massarc.archive._jit.use_numba`)."""
+    fast = _use_numba() if backend is None else backend == "numba"
+    if not fast or mass.size == 0:
         return _prefix_numpy(mass, rows, axis, positions)
     from ._compiled import prefix_rows, project_rows  # numba is imported on first use
 
@@ -316,6 +324,7 @@ class TransferStatistic(Statistic):
         if cap < 1:
             raise ValueError(f"transfers: expected intervals >= 1; got {cap}")
         self.plans = [plan_axis(a, n) for a, n in enumerate(shape)]
+        self.backend = backend_for(run)
         nrep, nsnap = max(run.n_replicas, 1), max(run.n_snapshots, 1)
         width = sum(len(p.positions) + p.ring_k for p in self.plans if p is not None)
         cap = max(1, min(cap, BUDGET // max(1, nrep * width)))
@@ -363,7 +372,7 @@ class TransferStatistic(Statistic):
             if plan is None:
                 parts.append(None)
                 continue
-            p = prefix_at(mass, rows, axis, plan.positions)
+            p = prefix_at(mass, rows, axis, plan.positions, self.backend)
             before, after = p[where[used]], p[where[used + 1]]
             x = self._constant(axis, chunk.replica, start + used)[:, None] - (after - before)
             parts.append((x, self._segments(plan, before)))
@@ -400,7 +409,7 @@ class TransferStatistic(Statistic):
             if plan is None:
                 parts.append(None)
                 continue
-            p = prefix_at(rows, np.arange(2, dtype=np.int64), axis, plan.positions)
+            p = prefix_at(rows, np.arange(2, dtype=np.int64), axis, plan.positions, self.backend)
             x = self._constant(axis, replica, np.array([g]))[:, None] - (p[1:] - p[:1])
             parts.append((x, self._segments(plan, p[:1])))
         self._store(replica, np.array([g // self.stride]), 1, parts)

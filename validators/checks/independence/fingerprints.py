@@ -49,7 +49,7 @@ from typing import Any
 
 import numpy as np
 
-from massarc.archive._jit import use_numba
+from massarc.archive._jit import backend_for, use_numba
 from massarc.archive.reader import Chunk, ChunkRef
 from massarc.archive.scan import ChunkFault, Statistic
 from massarc.archive.stats import SnapshotStatistic
@@ -139,6 +139,7 @@ class FingerprintStatistic(Statistic):
         self._anchor = np.full(shape2, -1, np.int64)
         self._valid = np.zeros(shape2, bool)
         self.moments = SnapshotStatistic(run)  # gives the anchors; replaced by a peer's
+        self.backend = backend_for(run)
 
     def prepare(self, peers: list[Statistic]) -> None:
         """Take the anchors from the ``snapshots`` statistic's reduction when it runs too."""
@@ -168,7 +169,7 @@ class FingerprintStatistic(Statistic):
             self.marker_keys,
             self.site_keys.reshape(-1),
         )
-        hashes = _hash_numba(*args) if _use_numba() else _hash_numpy(*args)
+        hashes = _hash_numba(*args) if self.backend == "numba" else _hash_numpy(*args)
         return (*hashes, anchor)
 
     def merge(self, ref: ChunkRef, partial: Any) -> None:
