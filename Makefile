@@ -60,9 +60,11 @@ lint: $(TESTED)
 samples: $(DEMO)
 	bash samples/make-samples.sh $(BIN)
 
-## bench: the benchmarks under bench/ (long; results go to bench/out and docs)
+## bench: the performance record, docs/performance.md (about 10 minutes; BENCH=--quick for a
+## look at development sizes; BENCH=--all for every benchmark and calibration, hours)
+BENCH ?=
 bench: $(TESTED)
-	$(BIN)/python -m bench
+	$(BIN)/python -m bench $(BENCH)
 
 clean:
 	rm -rf $(VENV) build .pytest_cache .ruff_cache .hypothesis

@@ -46,21 +46,22 @@ SITES, MASS, REPLICAS, B = 2000, 1200, 4, 4.0
 BASIC = ["schema", "integrity", "time-order", "nonnegative", "conservation"]
 
 
-def build(gib: float) -> Path:
-    """The cached run of ``gib`` GiB of uncompressed masses (built on first use)."""
+def build(gib: float, mass: int = MASS) -> Path:
+    """The cached run of ``gib`` GiB of uncompressed masses (built on first use); ``mass``
+    other than the condensed default (a fluid run at mass 600, say) is named in the file."""
     from massarc.schema import parse_metadata
     from massarc.simulate import simulate, snapshot_times
 
     per_snapshot = SITES * 2 * REPLICAS  # uint16
     n = round(gib * 2**30 / per_snapshot)
-    path = DATA / f"zrp-{SITES}-{n}.zarr"
+    path = DATA / (f"zrp-{SITES}-{n}.zarr" if mass == MASS else f"zrp-{SITES}-{n}-m{mass}.zarr")
     if reusable(path, n):
         return path
     meta = parse_metadata(
         {
             "model": {"family": "zrp", "b": B, "drift": "asymmetric"},
             "lattice": {"sites": [SITES], "boundary": "periodic"},
-            "run": {"regime": "stationary", "total_mass": MASS},
+            "run": {"regime": "stationary", "total_mass": mass},
         }
     )
     print(f"building {path.name} ({gib:g} GiB, {n} snapshots x {REPLICAS} replicas) ...")

@@ -31,8 +31,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.optimize import brentq
-from scipy.special import logsumexp
 
 from .models import CMAMModel, RunMeta, ZRPModel
 
@@ -270,6 +268,9 @@ def _log_weights(model: ZRPModel, kmax: int) -> np.ndarray:
 def _tilt(logf: np.ndarray, density: float) -> float:
     """theta such that the law proportional to f(m) e^(theta m), m = 0..K, has mean ``density``
     (0 < density < K)."""
+    from scipy.optimize import brentq  # scipy is imported when a law is first needed
+    from scipy.special import logsumexp
+
     m = np.arange(len(logf), dtype=np.float64)
 
     def excess(theta: float) -> float:
@@ -320,6 +321,8 @@ def log_partition(model: ZRPModel, volume: int, mass: int, cap: int | None = Non
     if volume * top == mass:  # every site holds exactly `top`
         return volume * float(logf[top])
     theta = _tilt(logf, mass / volume)
+    from scipy.special import logsumexp
+
     a = logf + theta * np.arange(top + 1)
     log_c = float(logsumexp(a))
     size = mass + 1

@@ -3,8 +3,9 @@
 One pass over the rows (snapshots) of a decoded chunk gives, per row, the total, extrema,
 sum of squares, occupied sites and position of the largest mass, counts and first
 positions of negative and sentinel values, and (optionally) the occupation histogram of
-each block of rows. With numba (the ``fast`` extra) this is one compiled loop; without it,
-or with ``MASSARC_PURE=1``, a NumPy sequence gives identical numbers.
+each block of rows. With numba (the ``fast`` extra) this is one compiled loop
+(:mod:`._compiled`, imported on first use); without it, or with ``MASSARC_PURE=1``, a NumPy
+sequence gives identical numbers.
 
 Semantics, shared by both paths:
 
@@ -21,27 +22,17 @@ and the reduction of a chunk is computed once per worker thread (:func:`reduce_c
 
 from __future__ import annotations
 
-import os
 import threading
 import weakref
 from dataclasses import dataclass
 
 import numpy as np
 
-try:  # numba is the optional `fast` extra
-    from numba import njit
-except ImportError:  # pragma: no cover - exercised only without numba
-    njit = None
+from .._jit import HAVE_NUMBA, use_numba
 
 __all__ = ["HAVE_NUMBA", "Plan", "Reduction", "reduce_chunk", "reduce_rows", "use_numba"]
 
-HAVE_NUMBA = njit is not None
 _I64_LIMIT = float(2**63)
-
-
-def use_numba() -> bool:
-    """True when the compiled path is available and not turned off by ``MASSARC_PURE=1``."""
-    return HAVE_NUMBA and os.environ.get("MASSARC_PURE", "") not in ("1", "true", "yes")
 
 
 @dataclass(frozen=True, eq=False)
@@ -52,6 +43,8 @@ class Plan:
     sentinel: int | None = None
     bins: int = 0
     edges: np.ndarray | None = None
+    #: ``"numba"``, ``"numpy"`` or None (:func:`use_numba`), for :func:`reduce_chunk`.
+    backend: str | None = None
 
 
 @dataclass
@@ -135,120 +128,9 @@ def _reduce_numpy(x: np.ndarray, plan: Plan, groups: np.ndarray, nblocks: int) -
     return moments, neg, sen, hist
 
 
-if njit is not None:
-    # Each row is reduced by small inlined helpers: LLVM vectorises the moments loop only
-    # when it stands alone. The histogram keeps 4 interleaved sub-histograms so that runs
-    # of equal masses do not chain load-store dependencies on one counter.
-
-    @njit(cache=True, nogil=True, boundscheck=False, inline="always")
-    def _row_moments(x, i, wide, signed, has_sent, s_val):  # pragma: no cover - compiled
-        t = np.int64(0)
-        s = np.int64(0)
-        sf = 0.0
-        o = np.int64(0)
-        nn = np.int64(0)
-        ns = np.int64(0)
-        hi = np.int64(x[i, 0])
-        lo = hi
-        for j in range(x.shape[1]):
-            v = x[i, j]
-            a = np.int64(v)
-            t += a
-            o += a != 0
-            hi = max(hi, a)
-            lo = min(lo, a)
-            if wide:
-                f = np.float64(a)
-                sf += f * f
-            else:
-                s += a * a
-            if signed:
-                nn += v < 0
-            if has_sent:
-                ns += v == s_val
-        return t, (sf if wide else np.float64(s)), o, hi, lo, nn, ns
-
-    @njit(cache=True, nogil=True, boundscheck=False)
-    def _row_hist(x, i, loc):  # pragma: no cover - compiled; every mass has its own bin
-        m = x.shape[1]
-        m4 = m - (m & 3)
-        for j in range(0, m4, 4):
-            loc[0, x[i, j]] += 1
-            loc[1, x[i, j + 1]] += 1
-            loc[2, x[i, j + 2]] += 1
-            loc[3, x[i, j + 3]] += 1
-        for j in range(m4, m):
-            loc[0, x[i, j]] += 1
-
-    @njit(cache=True, nogil=True, boundscheck=False)
-    def _row_hist_clamped(x, i, loc, tv, top, signed):  # pragma: no cover - compiled
-        for j in range(x.shape[1]):
-            v = x[i, j]
-            if v >= tv:
-                loc[j & 3, top] += 1
-            elif signed and v < 0:
-                loc[j & 3, 0] += 1
-            else:
-                loc[j & 3, np.int64(v)] += 1
-
-    @njit(cache=True, nogil=True, boundscheck=False)
-    def _first_equal(x, i, v):  # pragma: no cover - compiled
-        for j in range(x.shape[1]):
-            if x[i, j] == v:
-                return j
-        return -1
-
-    @njit(cache=True, nogil=True, boundscheck=False)
-    def _first_negative(x, i):  # pragma: no cover - compiled
-        for j in range(x.shape[1]):
-            if x[i, j] < 0:
-                return j
-        return -1
-
-    @njit(cache=True, nogil=True, boundscheck=False)
-    def _flush(loc, hist, g):  # pragma: no cover - compiled
-        for q in range(loc.shape[0]):
-            for c in range(hist.shape[1]):
-                hist[g, c] += loc[q, c]
-                loc[q, c] = 0
-
-    @njit(cache=True, nogil=True, boundscheck=False)
-    def _kernel(
-        x, wide, signed, sv, has_sent, topv, groups, hist, out_i, sq, flags
-    ):  # pragma: no cover
-        n, m = x.shape
-        nb = hist.shape[1]
-        top = nb - 1
-        s_val = sv[0]
-        loc = np.zeros((4, max(nb, 1)), np.int64)
-        for i in range(n):
-            t, s, o, hi, lo, nn, ns = _row_moments(x, i, wide, signed, has_sent, s_val)
-            out_i[0, i] = t
-            out_i[1, i] = hi
-            out_i[2, i] = lo
-            out_i[3, i] = o
-            out_i[4, i] = _first_equal(x, i, hi)
-            sq[i] = s
-            if nn:
-                if flags[0] < 0:
-                    flags[0] = i * m + _first_negative(x, i)
-                flags[1] += nn
-            if ns:
-                if flags[2] < 0:
-                    flags[2] = i * m + _first_equal(x, i, s_val)
-                flags[3] += ns
-            if nb == 0:
-                continue
-            if hi < top and lo >= 0:
-                _row_hist(x, i, loc)
-            else:  # rare rows: masses above the top bin (or negative)
-                _row_hist_clamped(x, i, loc, topv[0], top, signed)
-            if i == n - 1 or groups[i + 1] != groups[i]:
-                _flush(loc, hist, groups[i])
-        return 0
-
-
 def _reduce_numba(x: np.ndarray, plan: Plan, groups: np.ndarray, nblocks: int) -> tuple:
+    from ._compiled import reduce_kernel  # numba is imported on first use
+
     n = x.shape[0]
     out_i = np.zeros((5, n), np.int64)
     sq = np.zeros(n, np.float64)
@@ -260,7 +142,7 @@ def _reduce_numba(x: np.ndarray, plan: Plan, groups: np.ndarray, nblocks: int) -
     hist = np.zeros((nblocks if plan.bins else 0, plan.bins), np.int64)
     wide = x.dtype.itemsize > 2
     signed = x.dtype.kind == "i"
-    _kernel(x, wide, signed, sv, has_sent, topv, groups, hist, out_i, sq, flags)
+    reduce_kernel(x, wide, signed, sv, has_sent, topv, groups, hist, out_i, sq, flags)
     moments = (out_i[0], out_i[1], out_i[2], sq, out_i[3], out_i[4])
     return (
         moments,
@@ -285,7 +167,7 @@ def reduce_rows(x: np.ndarray, start: int, plan: Plan, *, backend: str | None = 
     xi, first_frac, n_frac = _integer_rows(x2)
     sentinel_plan = plan
     if plan.sentinel is not None and x2.dtype.kind != xi.dtype.kind:
-        sentinel_plan = Plan(None, plan.bins, plan.edges)  # floats have no sentinel
+        sentinel_plan = Plan(None, plan.bins, plan.edges, plan.backend)  # floats: no sentinel
     if plan.bins:
         hist_first, groups = _groups(plan, start, xi.shape[0])
         nblocks = int(groups[-1]) + 1 if len(groups) else 0
@@ -313,6 +195,6 @@ def reduce_chunk(chunk: object, plan: Plan) -> Reduction:
     ref = getattr(_MEMO, "chunk", None)
     if ref is not None and ref() is chunk and _MEMO.plan is plan:
         return _MEMO.result
-    result = reduce_rows(chunk.mass, chunk.start, plan)
+    result = reduce_rows(chunk.mass, chunk.start, plan, backend=plan.backend)
     _MEMO.chunk, _MEMO.plan, _MEMO.result = weakref.ref(chunk), plan, result
     return result

@@ -28,9 +28,10 @@ import numpy as np
 
 from massarc.schema.laws import critical_density
 
+from .._jit import backend_for
 from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic
-from ._kernels import _integer_rows, njit, use_numba
+from ._kernels import HAVE_NUMBA, _integer_rows, use_numba
 
 __all__ = [
     "DEFAULT_FACTOR",
@@ -89,23 +90,6 @@ def _count_numpy(x: np.ndarray, above: float) -> tuple[np.ndarray, np.ndarray]:
     )
 
 
-if njit is not None:
-
-    @njit(cache=True, nogil=True, boundscheck=False)
-    def _count_kernel(x, above, count, mass):  # pragma: no cover - compiled
-        for i in range(x.shape[0]):
-            c = np.int64(0)
-            s = np.int64(0)
-            for j in range(x.shape[1]):
-                v = x[i, j]
-                if v > above:
-                    c += 1
-                    s += np.int64(v)
-            count[i] = c
-            mass[i] = s
-        return 0
-
-
 def count_above(x: np.ndarray, above: float, *, backend: str | None = None) -> tuple:
     """Per row of ``x`` (shape ``(rows, ...)``): sites with mass > ``above``, their mass.
 
@@ -117,13 +101,15 @@ def count_above(x: np.ndarray, above: float, *, backend: str | None = None) -> t
     x2 = np.ascontiguousarray(x.reshape(x.shape[0], -1))
     xi, _first, _n = _integer_rows(x2)
     fast = use_numba() if backend is None else backend == "numba"
-    if fast and njit is None:
+    if fast and not HAVE_NUMBA:
         raise RuntimeError("expected numba to be installed for backend='numba'; it is not")
     if not fast or xi.size == 0:
         return _count_numpy(xi, above)
+    from ._compiled import count_kernel  # numba is imported on first use
+
     count = np.zeros(xi.shape[0], np.int64)
     mass = np.zeros(xi.shape[0], np.int64)
-    _count_kernel(xi, float(above), count, mass)
+    count_kernel(xi, float(above), count, mass)
     return count, mass
 
 
@@ -149,9 +135,10 @@ class CondensateStatistic(Statistic):
         self._count = np.full(shape, -1, np.int64)
         self._mass = np.full(shape, -1, np.int64)
         self._valid = np.zeros(shape, bool)
+        self.backend = backend_for(run)
 
     def chunk(self, block: Chunk) -> Any:
-        return count_above(block.mass, self.above)
+        return count_above(block.mass, self.above, backend=self.backend)
 
     def merge(self, ref: ChunkRef, partial: Any) -> None:
         sl = (ref.replica, slice(ref.start, ref.stop))

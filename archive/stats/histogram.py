@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from .._jit import backend_for
 from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic
 from ._kernels import Plan, reduce_chunk
@@ -74,7 +75,7 @@ class HistogramStatistic(Statistic):
         nb = len(self.edges) - 1
         self._counts = np.zeros((run.n_replicas, nb, self.bins), np.int64)
         self._valid = np.ones((run.n_replicas, nb), bool)
-        self.plan = Plan(None, self.bins, self.edges)
+        self.plan = Plan(None, self.bins, self.edges, backend_for(run))
         #: True once a ``snapshots`` statistic shares its loop (see SnapshotStatistic.prepare).
         self.fused = False
 

@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 
+from .._jit import backend_for
 from ..layout import sentinel
 from ..reader import Chunk, ChunkRef
 from ..scan import ChunkFault, Statistic
@@ -78,7 +79,7 @@ class SnapshotStatistic(Statistic):
         self._firsts: dict[str, list[tuple[Location, int]]] = {k: [] for k in _KINDS}
         dt = run.dtype
         self._sentinel = sentinel(dt) if dt.kind in "ui" else None
-        self.plan = Plan(sentinel=self._sentinel)
+        self.plan = Plan(sentinel=self._sentinel, backend=backend_for(run))
 
     def prepare(self, peers: list[Statistic]) -> None:
         """Share one fused loop with the first ``histogram`` statistic of the pass."""
@@ -86,7 +87,7 @@ class SnapshotStatistic(Statistic):
 
         for peer in peers:
             if isinstance(peer, HistogramStatistic) and not peer.fused:
-                self.plan = Plan(self._sentinel, peer.bins, peer.edges)
+                self.plan = Plan(self._sentinel, peer.bins, peer.edges, self.plan.backend)
                 peer.plan, peer.fused = self.plan, True
                 return
 

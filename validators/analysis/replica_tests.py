@@ -56,7 +56,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.stats import t as student
 
 from .diagnostics.autocorr import SOKAL_C, autocorrelation, sokal_window
 from .diagnostics.rank import rank_normalize
@@ -98,7 +97,9 @@ class MeanTest:
 
     def p_one_sided(self, sign: float) -> float:
         """Tail of the robust score in the direction ``sign`` (+1 or -1)."""
-        return float(student.sf(sign * self.z, max(self.ess - 1.0, 1.0)))
+        from .tails import student_sf  # scipy.special, imported on first use
+
+        return float(student_sf(sign * self.z, max(self.ess - 1.0, 1.0)))
 
 
 def _g(series: list[np.ndarray], c: float) -> float:
@@ -144,7 +145,9 @@ def replica_mean_test(
     ess = n / g
     per = ess / reps
     reliable = bool(per >= 50 or (reps >= 4 and per >= 10))
-    p = float(2 * student.sf(abs(z), max(ess - 1.0, 1.0)))
+    from .tails import student_sf  # scipy.special, imported on first use
+
+    p = float(2 * student_sf(abs(z), max(ess - 1.0, 1.0)))
     return MeanTest(mean, se, float(z), p, n, g, ess, reps, spread, reliable)
 
 

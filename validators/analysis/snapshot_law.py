@@ -38,7 +38,6 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from scipy.stats import chi2
 
 from massarc.schema import CMAMModel, RunMeta, ZRPModel
 from massarc.schema.laws import (
@@ -159,7 +158,9 @@ class ExactLargestMass:
 def fisher(p: list[float]) -> float:
     """Fisher's combination of independent p-values: chi2_{2R} tail of -2 sum log p."""
     x = -2.0 * sum(math.log(max(v, 1e-300)) for v in p)
-    return float(chi2.sf(x, 2 * len(p)))
+    from .tails import chi2_sf  # scipy.special, imported on first use
+
+    return chi2_sf(x, 2 * len(p))
 
 
 def snapshot_law(

@@ -10,11 +10,6 @@ from __future__ import annotations
 
 from typing import IO
 
-from rich import box
-from rich.console import Console
-from rich.table import Table
-from rich.text import Text
-
 from ..engine.result import Where
 from .model import AuditReport
 from .sweep import render_sweep
@@ -72,6 +67,11 @@ def _rules(report: AuditReport) -> list[str]:
 def render_table(report: AuditReport, file: IO[str], *, quiet: bool = False) -> None:
     """Write the table to ``file`` (colour when it is a terminal). ``quiet``: only the
     checks that did not pass, and the summary."""
+    from rich import box  # imported when a table is drawn: --list and JSON need none of it
+    from rich.console import Console
+    from rich.table import Table
+    from rich.text import Text
+
     console = Console(file=file, width=None if file.isatty() else 160, soft_wrap=False)
     table = Table(box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, expand=False)
     for name in ("run", "check", "status", "message", "where"):

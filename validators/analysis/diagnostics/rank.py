@@ -29,8 +29,6 @@ Steps (section numbers of the paper):
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtri
-from scipy.stats import rankdata
 
 from .autocorr import autocovariance
 
@@ -68,8 +66,10 @@ def split_chains(x: np.ndarray) -> np.ndarray:
 def rank_normalize(x: np.ndarray) -> np.ndarray:
     """Normal scores of the pooled average ranks, Phi^{-1}((r - 3/8) / (S + 1/4))."""
     a = np.asarray(x, dtype=np.float64)
-    r = rankdata(a, method="average").reshape(a.shape)
-    return ndtri((r - 0.375) / (a.size + 0.25))
+    from ..tails import average_ranks, normal_ppf  # scipy.special, imported on first use
+
+    r = average_ranks(a).reshape(a.shape)
+    return normal_ppf((r - 0.375) / (a.size + 0.25))
 
 
 def rhat_basic(x: np.ndarray) -> float:

@@ -42,7 +42,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.stats import norm
 
 from .autocorr import SOKAL_C, autocorrelation, sokal_window
 from .rank import ess_bulk
@@ -122,7 +121,9 @@ def trend_test(y: np.ndarray, c: float = SOKAL_C) -> TrendTest:
     stouffer = float(scores.sum() / np.sqrt(reps))
     spread = float(np.std(scores, ddof=1)) if reps > 1 else float("nan")
     z = stouffer / max(1.0, spread) if reps > 1 else stouffer
-    p = float(2.0 * norm.sf(abs(z)))
+    from ..tails import normal_sf  # scipy.special, imported on first use
+
+    p = float(2.0 * normal_sf(abs(z)))
     common = a - a.mean() - float(a.mean(axis=0) @ k / sxx) * k  # the common line removed
     ess = ess_bulk(common) if n >= 4 else float(reps)
     per_chain = ess / reps

@@ -86,7 +86,6 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
 from .transfers import AxisTransfers, TransferPlan
 
@@ -314,13 +313,17 @@ class WallTest:
         the critical t plus ``margin``."""
         if not (self.dof > 0 and math.isfinite(self.se)):
             return False
-        return (RING_CORRELATION - self.rho0) / self.se >= stats.t.isf(alpha, self.dof) + margin
+        from ...analysis.tails import student_isf  # scipy.special, imported on first use
+
+        return (RING_CORRELATION - self.rho0) / self.se >= student_isf(alpha, self.dof) + margin
 
 
 def _normal_scores(y: np.ndarray) -> np.ndarray:
     """Columns of ``y`` replaced by the normal scores of their mid-ranks."""
-    r = stats.rankdata(y, axis=0)
-    return stats.norm.ppf(r / (len(y) + 1))
+    from ...analysis.tails import average_ranks, normal_ppf  # scipy.special, on first use
+
+    r = average_ranks(y, axis=0)
+    return normal_ppf(r / (len(y) + 1))
 
 
 def _pair_correlation(a: np.ndarray, b: np.ndarray) -> float:
@@ -377,7 +380,9 @@ def wall_test(
     mean = float(v.mean())
     se = max(float(v.std(ddof=1) / math.sqrt(m)), 1e-12)
     t = (mean - rho0) / se
-    p = float(stats.t.sf(t, m - 1))
+    from ...analysis.tails import student_sf  # scipy.special, imported on first use
+
+    p = float(student_sf(t, m - 1))
     return WallTest(bonds, spacing, scale, rho0, mean, se, t, m - 1, p, m)
 
 

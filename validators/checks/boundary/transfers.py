@@ -41,19 +41,14 @@ Options: ``intervals`` (per replica, default 2048).
 from __future__ import annotations
 
 import math
-import os
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
+from massarc.archive._jit import backend_for, use_numba
 from massarc.archive.reader import Chunk, ChunkRef
 from massarc.archive.scan import ChunkFault, Statistic
-
-try:  # numba is the optional `fast` extra; without it the NumPy path below is used
-    from numba import njit
-except ImportError:  # pragma: no cover - exercised only without numba
-    njit = None
 
 __all__ = [
     "BUDGET",
@@ -216,8 +211,9 @@ def plan_axis(axis: int, length: int) -> TransferPlan | None:
 
 
 def _use_numba() -> bool:
-    """The compiled kernels, unless numba is missing or ``MASSARC_PURE=1``."""
-    return njit is not None and os.environ.get("MASSARC_PURE", "") not in ("1", "true", "yes")
+    """The compiled kernels (:mod:`._compiled`), unless numba is missing or
+    ``MASSARC_PURE=1``."""
+    return use_numba()
 
 
 # -- prefix sums at cut positions ----------------------------------------------------------
@@ -230,54 +226,29 @@ def _prefix_numpy(mass: np.ndarray, rows: np.ndarray, axis: int, positions: np.n
     return np.cumsum(sel, axis=1, dtype=np.int64)[:, positions]
 
 
-if njit is not None:
-
-    @njit(cache=True, nogil=True)
-    def _prefix_rows(mass, rows, positions, out):  # pragma: no cover - compiled
-        for j in range(rows.shape[0]):
-            r = rows[j]
-            acc = np.int64(0)
-            start = 0
-            for p in range(positions.shape[0]):
-                stop = positions[p] + 1
-                s = np.int64(0)
-                for i in range(start, stop):
-                    s += np.int64(mass[r, i])
-                acc += s
-                out[j, p] = acc
-                start = stop
-
-    @njit(cache=True, nogil=True)
-    def _project_rows(mass, rows, axis, out):  # pragma: no cover - compiled
-        ny, nx = mass.shape[1], mass.shape[2]
-        for j in range(rows.shape[0]):
-            r = rows[j]
-            for i in range(out.shape[1]):
-                out[j, i] = 0
-            for y in range(ny):
-                if axis == 1:
-                    for x in range(nx):
-                        out[j, x] += np.int64(mass[r, y, x])
-                else:
-                    s = np.int64(0)
-                    for x in range(nx):
-                        s += np.int64(mass[r, y, x])
-                    out[j, y] = s
-
-
-def prefix_at(mass: np.ndarray, rows: np.ndarray, axis: int, positions: np.ndarray) -> np.ndarray:
+def prefix_at(
+    mass: np.ndarray,
+    rows: np.ndarray,
+    axis: int,
+    positions: np.ndarray,
+    backend: str | None = None,
+) -> np.ndarray:
     """Prefix sums ``(len(rows), len(positions))`` of the rows of ``mass`` (``(time, L)`` or
-    ``(time, Ly, Lx)``, integers) projected on ``axis``."""
-    if not _use_numba() or mass.size == 0:
+    ``(time, Ly, Lx)``, integers) projected on ``axis``; ``backend`` is ``"numba"``,
+    ``"numpy"`` or None (:func:`massarc.archive._jit.use_numba`)."""
+    fast = _use_numba() if backend is None else backend == "numba"
+    if not fast or mass.size == 0:
         return _prefix_numpy(mass, rows, axis, positions)
+    from ._compiled import prefix_rows, project_rows  # numba is imported on first use
+
     m = np.ascontiguousarray(mass)
     out = np.empty((len(rows), len(positions)), np.int64)
     if m.ndim == 2:
-        _prefix_rows(m, rows, positions, out)
+        prefix_rows(m, rows, positions, out)
         return out
     proj = np.empty((len(rows), m.shape[1 + axis]), np.int64)
-    _project_rows(m, rows, axis, proj)
-    _prefix_rows(proj, np.arange(len(rows), dtype=np.int64), positions, out)
+    project_rows(m, rows, axis, proj)
+    prefix_rows(proj, np.arange(len(rows), dtype=np.int64), positions, out)
     return out
 
 
@@ -353,6 +324,7 @@ class TransferStatistic(Statistic):
         if cap < 1:
             raise ValueError(f"transfers: expected intervals >= 1; got {cap}")
         self.plans = [plan_axis(a, n) for a, n in enumerate(shape)]
+        self.backend = backend_for(run)
         nrep, nsnap = max(run.n_replicas, 1), max(run.n_snapshots, 1)
         width = sum(len(p.positions) + p.ring_k for p in self.plans if p is not None)
         cap = max(1, min(cap, BUDGET // max(1, nrep * width)))
@@ -400,7 +372,7 @@ class TransferStatistic(Statistic):
             if plan is None:
                 parts.append(None)
                 continue
-            p = prefix_at(mass, rows, axis, plan.positions)
+            p = prefix_at(mass, rows, axis, plan.positions, self.backend)
             before, after = p[where[used]], p[where[used + 1]]
             x = self._constant(axis, chunk.replica, start + used)[:, None] - (after - before)
             parts.append((x, self._segments(plan, before)))
@@ -437,7 +409,7 @@ class TransferStatistic(Statistic):
             if plan is None:
                 parts.append(None)
                 continue
-            p = prefix_at(rows, np.arange(2, dtype=np.int64), axis, plan.positions)
+            p = prefix_at(rows, np.arange(2, dtype=np.int64), axis, plan.positions, self.backend)
             x = self._constant(axis, replica, np.array([g]))[:, None] - (p[1:] - p[:1])
             parts.append((x, self._segments(plan, p[:1])))
         self._store(replica, np.array([g // self.stride]), 1, parts)

@@ -69,7 +69,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy.stats import norm
 
 from ...analysis.replica_tests import MeanTest, replica_mean_test
 from ...analysis.transport import Transport, dt_for, influence, profile_centre
@@ -311,9 +310,11 @@ def _centre_size(
     mean = float(np.mean([r.mean() for r in rows]))
     sign = 1.0 if predicted >= 0 else -1.0
     z_weak = (mean - tolerance * predicted) / se
+    from ...analysis.tails import normal_sf  # scipy.special, on first use
+
     return _Size(
         -1, -1, -1, mean, se, predicted, 0.0, tolerance * abs(predicted) / se,
-        abs(predicted) / se, float(norm.sf(-sign * z_weak)), 1.0,
+        abs(predicted) / se, float(normal_sf(-sign * z_weak)), 1.0,
     )  # fmt: skip
 
 
@@ -419,7 +420,9 @@ def _symmetric(
         )  # fmt: skip
     usable = _usable(data, lags, 1.0, transport, ndim)
     sizes = _sizes(data, usable, 1.0, ndim, 0.5, flat, starts, lags)
-    need = float(norm.isf(alpha / (2 * len(cells)))) + margin
+    from ...analysis.tails import normal_isf  # scipy.special, on first use
+
+    need = float(normal_isf(alpha / (2 * len(cells)))) + margin
     numbers["usable_lags"] = [int(lags[li]) for li in usable]
     numbers["required_score"] = need
     if sizes:
@@ -487,7 +490,9 @@ def _driven(
         weak = min(sizes, key=lambda s: s.p_weak)
         strong = min(sizes, key=lambda s: s.p_strong)
         top = max(sizes, key=lambda s: s.detect)
-        need = float(norm.isf(alpha / m)) + margin
+        from ...analysis.tails import normal_isf  # scipy.special, on first use
+
+        need = float(normal_isf(alpha / m)) + margin
         numbers["required_score"] = need
         if min(1.0, m * weak.p_weak) < alpha and (p_agree < alpha or weak.detect >= need):
             numbers.update(_size_numbers(weak, lags, "declared"))

@@ -59,7 +59,6 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy.fft import next_fast_len
 
 from massarc.archive.reader import Chunk, ChunkRef
 from massarc.archive.scan import ChunkFault, Statistic
@@ -306,6 +305,8 @@ class SpacetimeStatistic(Statistic):
         cross-spectrum."""
         length, win = spec["length"], spec["windows"]
         periodic = spec["periodic"]
+        from scipy.fft import next_fast_len  # imported when first needed: slow to load
+
         nfft = length if periodic else next_fast_len(2 * length - 1, real=True)
         n, nv, nl, nw = len(fields[0]), len(VARIANTS), len(self.lags), len(win)
         volume = fields[0][0].size

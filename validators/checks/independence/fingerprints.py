@@ -44,21 +44,16 @@ gives the same numbers (wrapping uint64 arithmetic on both paths).
 from __future__ import annotations
 
 import math
-import os
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
+from massarc.archive._jit import backend_for, use_numba
 from massarc.archive.reader import Chunk, ChunkRef
 from massarc.archive.scan import ChunkFault, Statistic
 from massarc.archive.stats import SnapshotStatistic
 from massarc.archive.stats.sampling import hashed_subset, sample_count
-
-try:  # numba is the optional `fast` extra; without it the NumPy path below is used
-    from numba import njit
-except ImportError:  # pragma: no cover - exercised only without numba
-    njit = None
 
 __all__ = ["FingerprintStatistic", "FingerprintStats", "marker_offsets", "mix64"]
 
@@ -144,6 +139,7 @@ class FingerprintStatistic(Statistic):
         self._anchor = np.full(shape2, -1, np.int64)
         self._valid = np.zeros(shape2, bool)
         self.moments = SnapshotStatistic(run)  # gives the anchors; replaced by a peer's
+        self.backend = backend_for(run)
 
     def prepare(self, peers: list[Statistic]) -> None:
         """Take the anchors from the ``snapshots`` statistic's reduction when it runs too."""
@@ -173,7 +169,7 @@ class FingerprintStatistic(Statistic):
             self.marker_keys,
             self.site_keys.reshape(-1),
         )
-        hashes = _hash_numba(*args) if _use_numba() else _hash_numpy(*args)
+        hashes = _hash_numba(*args) if self.backend == "numba" else _hash_numpy(*args)
         return (*hashes, anchor)
 
     def merge(self, ref: ChunkRef, partial: Any) -> None:
@@ -203,8 +199,16 @@ class FingerprintStatistic(Statistic):
 
 
 def _use_numba() -> bool:
-    """The compiled kernel, unless numba is missing or ``MASSARC_PURE=1``."""
-    return njit is not None and os.environ.get("MASSARC_PURE", "") not in ("1", "true", "yes")
+    """The compiled kernel (:mod:`._compiled`), unless numba is missing or
+    ``MASSARC_PURE=1``."""
+    return use_numba()
+
+
+def _hash_numba(*args: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The four hashes of every row, compiled (numba is imported on first use)."""
+    from ._compiled import hash_rows
+
+    return hash_rows(*args)
 
 
 def _as_u64(v: np.ndarray) -> np.ndarray:
@@ -242,60 +246,3 @@ def _hash_numpy(
         rolled = site_keys[ky * lx + kx]
         full_anchored[picked] = mix64((v * rolled).sum(axis=1, dtype=np.uint64))
     return sparse, anchored, full, full_anchored
-
-
-if njit is not None:
-
-    @njit(cache=True, nogil=True, inline="always")
-    def _mix_one(x):  # pragma: no cover - compiled
-        x = (x ^ (x >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
-        x = (x ^ (x >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
-        return x ^ (x >> np.uint64(31))
-
-    @njit(cache=True, nogil=True, boundscheck=False)
-    def _hash_numba(
-        rows, anchor, sampled, offsets, sites, marker_keys, site_keys
-    ):  # pragma: no cover - compiled
-        n, volume = rows.shape
-        ly, lx = sites[0], sites[1]
-        k = offsets.shape[0]
-        sparse = np.zeros(n, np.uint64)
-        anchored = np.zeros(n, np.uint64)
-        full = np.zeros(n, np.uint64)
-        full_anchored = np.zeros(n, np.uint64)
-        for i in range(n):
-            ay, ax = anchor[i] // lx, anchor[i] % lx
-            h1 = np.uint64(0)
-            h2 = np.uint64(0)
-            for j in range(k):
-                oy, ox = offsets[j, 0], offsets[j, 1]
-                h1 += np.uint64(np.int64(rows[i, oy * lx + ox])) * marker_keys[j]
-                py = ay + oy
-                if py >= ly:
-                    py -= ly
-                px = ax + ox
-                if px >= lx:
-                    px -= lx
-                h2 += np.uint64(np.int64(rows[i, py * lx + px])) * marker_keys[j]
-            sparse[i] = _mix_one(h1)
-            anchored[i] = _mix_one(h2)
-            if sampled[i]:
-                f1 = np.uint64(0)
-                f2 = np.uint64(0)
-                for s in range(volume):
-                    f1 += np.uint64(np.int64(rows[i, s])) * site_keys[s]
-                for y in range(ly):
-                    ky = y - ay
-                    if ky < 0:
-                        ky += ly
-                    for x in range(lx):
-                        kx = x - ax
-                        if kx < 0:
-                            kx += lx
-                        f2 += np.uint64(np.int64(rows[i, y * lx + x])) * site_keys[ky * lx + kx]
-                full[i] = _mix_one(f1)
-                full_anchored[i] = _mix_one(f2)
-        return sparse, anchored, full, full_anchored
-
-else:  # pragma: no cover - exercised only without numba
-    _hash_numba = _hash_numpy

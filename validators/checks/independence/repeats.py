@@ -41,7 +41,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy.stats import poisson
 
 from ...analysis.diagnostics.autocorr import integrated_autocorr_time
 from .fingerprints import FingerprintStats, mix64
@@ -334,7 +333,9 @@ def judge_relation(
     mean_q = float(np.exp(lq).mean())
     lam = max(thinned * mean_q, 1e-300)
     rel.expected = lam
-    log_sf = float(poisson.logsf(rel.witnesses - 1, lam))
+    from ...analysis.tails import poisson_logsf  # scipy.special, imported on first use
+
+    log_sf = poisson_logsf(rel.witnesses - 1, lam)
     if not math.isfinite(log_sf):  # far beyond the float range: the leading term
         log_sf = rel.witnesses * math.log(lam) - math.lgamma(rel.witnesses + 1)
     rel.log10_p = min(0.0, (math.log(hypotheses) + log_sf) / math.log(10.0))

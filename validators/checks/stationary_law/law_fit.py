@@ -40,7 +40,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 __all__ = ["LawFit", "fit_law", "merge_bins"]
 
@@ -163,7 +162,9 @@ def fit_law(
     delta = trace / (k - 1)
     f_stat = chi2 / trace
     den = nu * (m - 1)
-    p_value = float(stats.f.sf(f_stat, nu, den))
+    from ...analysis.tails import f_sf  # scipy.special, imported on first use
+
+    p_value = f_sf(f_stat, nu, den)
     return LawFit(
         chi2=chi2,
         dof=k - 1,

@@ -1,0 +1,400 @@
+"""The performance record: ``massarc check``, ``summarize`` and ``convert`` end to end, against
+bare zarr-python decoding (or encoding) of the same data, measured in the same run; writes
+docs/performance.md (``make bench``).
+
+    .venv/bin/python bench/bench_performance.py            # 1 GiB runs, 4 GiB for memory
+    .venv/bin/python bench/bench_performance.py --quick    # 1/16 and 1/4 GiB, for development
+
+Every command runs as a fresh process, timed from the parent (start-up included), and its
+peak resident set is the ``ru_maxrss`` that ``os.wait4`` reports for that child alone:
+
+* ``decode`` (the baseline of ``check`` and ``summarize``): ``python -c`` importing
+  zarr-python and decoding every chunk-aligned slab of the mass array from a pool of as
+  many threads as the audit uses;
+* ``check``: ``massarc check RUN --as json`` with every default check;
+* ``summarize``: ``massarc summarize RUN --force`` with every default;
+* ``encode`` (the baseline of ``convert``): ``python -c`` importing zarr-python and writing
+  the run's masses from a ``.npy`` file into an array with massarc's codecs and chunks;
+* ``convert``: ``massarc convert RUN.npy OUT.zarr --meta META`` (the same ``.npy``);
+* start-up: ``python -c pass``, ``python -c "import zarr"``, ``massarc --version`` and
+  ``massarc check --list``.
+
+Runs (built once with ``massarc.simulate``, cached under ``bench/out/check-data/``): a
+totally asymmetric ZRP, u(k) = 1 + 4/k (rho_c = 1/2), 2000 sites on a ring, 4 replicas from
+the exact steady state, uint16: *condensed* at density 0.6 (the run of ``bench_check.py``)
+and *fluid* at density 0.3. The machine is shared: each measurement is the fastest of
+``--repeat`` (alternating kinds), and the load average is written beside the numbers.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime
+import json
+import os
+import platform
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import bench_check
+import numpy as np
+
+HERE = Path(__file__).parent
+OUT = HERE / "out"
+DOC = HERE.parent / "docs" / "performance.md"
+MASSARC = str(Path(sys.executable).with_name("massarc"))
+SITES, B = bench_check.SITES, bench_check.B
+DENSITY = {"condensed": 0.6, "fluid": 0.3}
+
+DECODE = """
+import sys
+from concurrent.futures import ThreadPoolExecutor
+import zarr
+arr = zarr.open_group(sys.argv[1], mode="r")["mass"]
+step = arr.chunks[1]
+slabs = [(r, a) for r in range(arr.shape[0]) for a in range(0, arr.shape[1], step)]
+def read(s):
+    return arr[s[0], s[1] : s[1] + step].nbytes
+with ThreadPoolExecutor(int(sys.argv[2])) as pool:
+    print(sum(pool.map(read, slabs)))
+"""
+
+ENCODE = """
+import sys
+import numpy as np
+import zarr
+from zarr.codecs import BloscCodec, BloscShuffle, Crc32cCodec
+src = np.load(sys.argv[1], mmap_mode="r")
+tc = int(sys.argv[3])
+z = zarr.create_array(
+    sys.argv[2], shape=src.shape, chunks=(1, tc, src.shape[2]), dtype=src.dtype,
+    fill_value=np.iinfo(src.dtype).max, zarr_format=3,
+    compressors=[BloscCodec(cname="zstd", clevel=5, shuffle=BloscShuffle.bitshuffle),
+                 Crc32cCodec()],
+    config={"write_empty_chunks": True},
+)
+for r in range(src.shape[0]):
+    for a in range(0, src.shape[1], 8 * tc):
+        z[r, a : a + 8 * tc] = src[r, a : a + 8 * tc]
+"""
+
+
+def build(kind: str, gib: float) -> Path:
+    """The cached run of ``kind`` with ``gib`` GiB of uncompressed masses (``bench_check``'s
+    builder: the condensed run is the one it measures)."""
+    return bench_check.build(gib, round(DENSITY[kind] * SITES))
+
+
+def meta_dict(kind: str) -> dict:
+    return {
+        "model": {"family": "zrp", "b": B, "drift": "asymmetric"},
+        "lattice": {"sites": [SITES], "boundary": "periodic"},
+        "run": {"regime": "stationary", "total_mass": round(DENSITY[kind] * SITES)},
+    }
+
+
+#: Runs one command and reports its wall time, exit status and ru_maxrss. A child inherits
+#: the ru_maxrss of the process that forks it (Linux keeps the old image's peak across
+#: exec), so the commands are started by this small fresh process, not by the bench itself.
+LAUNCH = """
+import json, os, subprocess, sys, time
+t0 = time.perf_counter()
+proc = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+err = proc.stderr.read().decode(errors="replace")
+_, status, usage = os.wait4(proc.pid, 0)
+seconds = time.perf_counter() - t0
+code = os.waitstatus_to_exitcode(status)
+peak = usage.ru_maxrss * 1024
+print(json.dumps({"seconds": seconds, "status": code, "peak": peak, "err": err[-2000:]}))
+"""
+
+
+def timed(cmd: list[str]) -> tuple[float, int, int]:
+    """Wall seconds, exit status and peak resident set (bytes) of ``cmd`` as one child."""
+    out = subprocess.run(
+        [sys.executable, "-c", LAUNCH, *cmd], capture_output=True, text=True, check=True
+    )
+    res = json.loads(out.stdout.strip().splitlines()[-1])
+    if res["status"] not in (0, 1):  # check exits 1 when a check fails: still timed
+        raise RuntimeError(f"{' '.join(cmd)}: exit {res['status']}\n{res['err']}")
+    return res["seconds"], res["status"], res["peak"]
+
+
+def export_npy(path: Path) -> tuple[Path, Path, int]:
+    """The run's masses as ``.npy`` beside it (made once), its metadata file, chunk length."""
+    import zarr
+
+    arr = zarr.open_group(str(path), mode="r")["mass"]
+    npy = path.with_suffix(".npy")
+    meta = path.with_suffix(".meta.json")
+    kind = "fluid" if "-m" in path.stem else "condensed"
+    meta.write_text(json.dumps(meta_dict(kind)))
+    if not npy.exists() or npy.stat().st_size < arr.nbytes:
+        out = np.lib.format.open_memmap(npy, mode="w+", dtype=arr.dtype, shape=arr.shape)
+        step = arr.chunks[1]
+        for r in range(arr.shape[0]):
+            for a in range(0, arr.shape[1], step):
+                out[r, a : a + step] = arr[r, a : a + step]
+        out.flush()
+        del out
+    return npy, meta, int(arr.chunks[1])
+
+
+def commands(path: Path, workers: int, scratch: Path) -> dict[str, list[str]]:
+    npy, meta, tc = export_npy(path)
+    py = sys.executable
+    return {
+        "decode": [py, "-c", DECODE, str(path), str(workers)],
+        "check": [MASSARC, "check", str(path), "--as", "json", "-q", "--workers", str(workers)],
+        "summarize": [
+            MASSARC, "summarize", str(path), "--force", "-q", "--as", "json",
+            "--workers", str(workers),
+        ],
+        "encode": [py, "-c", ENCODE, str(npy), str(scratch / "encode.zarr"), str(tc)],
+        "convert": [
+            MASSARC, "convert", str(npy), str(scratch / "convert.zarr"), "--meta", str(meta),
+            "--overwrite", "-q",
+        ],
+    }  # fmt: skip
+
+
+def measure(cmds: dict[str, list[str]], repeat: int, scratch: Path) -> dict:
+    """Best (and all) wall seconds and peak RSS of each command, alternating."""
+    runs: dict[str, list[tuple[float, int]]] = {k: [] for k in cmds}
+    for _ in range(repeat):
+        for kind, cmd in cmds.items():
+            shutil.rmtree(scratch / "encode.zarr", ignore_errors=True)
+            seconds, _rc, peak = timed(cmd)
+            runs[kind].append((seconds, peak))
+    return {
+        kind: {
+            "seconds": min(s for s, _ in v),
+            "all_seconds": [s for s, _ in v],
+            "peak_rss": max(p for _, p in v),
+        }
+        for kind, v in runs.items()
+    }
+
+
+def startup(repeat: int) -> dict[str, float]:
+    py = sys.executable
+    cmds = {
+        "python": [py, "-c", "pass"],
+        "import zarr": [py, "-c", "import zarr"],
+        "massarc --version": [MASSARC, "--version"],
+        "massarc check --list": [MASSARC, "check", "--list"],
+    }
+    best = {k: float("inf") for k in cmds}
+    for _ in range(repeat):
+        for k, cmd in cmds.items():
+            best[k] = min(best[k], timed(cmd)[0])
+    return best
+
+
+def imports_seconds() -> dict[str, float]:
+    """Self-reported import time (``-X importtime``, microseconds summed at top level)."""
+    out = {}
+    for mod in ("zarr", "massarc.cli.check", "massarc.validators", "scipy.stats", "numba"):
+        res = subprocess.run(
+            [sys.executable, "-X", "importtime", "-c", f"import {mod}"],
+            capture_output=True,
+            text=True,
+            check=True,
+        )
+        total = 0
+        for line in res.stderr.splitlines():
+            parts = line.split("|")
+            if len(parts) == 3 and not parts[2].startswith("  ") and parts[1].strip().isdigit():
+                total += int(parts[1])
+        out[mod] = total / 1e6
+    return out
+
+
+def machine() -> dict:
+    import numcodecs
+    import numpy
+    import zarr
+
+    model = "unknown"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                model = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    versions = {"python": platform.python_version(), "numpy": numpy.__version__}
+    versions.update({"zarr": zarr.__version__, "numcodecs": numcodecs.__version__})
+    for name in ("numba", "scipy"):
+        try:
+            versions[name] = __import__(name).__version__
+        except ImportError:
+            versions[name] = "not installed"
+    commit = subprocess.run(
+        ["git", "-C", str(HERE.parent), "rev-parse", "--short", "HEAD"],
+        capture_output=True,
+        text=True,
+    ).stdout.strip()
+    return {
+        "cores": os.cpu_count(),
+        "usable_cores": len(os.sched_getaffinity(0)),
+        "cpu": model,
+        "versions": versions,
+        "commit": commit or "unknown",
+    }
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="1/16 GiB runs, 1/4 GiB for memory")
+    ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--workers", type=int, default=None)
+    ap.add_argument("--no-doc", action="store_true", help="write only bench/out/performance.json")
+    ap.add_argument("--no-large", action="store_true", help="skip the larger (memory) run")
+    ap.add_argument("--out", default=str(OUT / "performance.json"), help="the JSON written")
+    args = ap.parse_args()
+    started = time.perf_counter()
+    workers = args.workers or len(os.sched_getaffinity(0))
+    small, large = (1 / 16, 1 / 4) if args.quick else (1.0, 4.0)
+    load_before = os.getloadavg()
+    scratch = OUT / "performance-scratch"
+    scratch.mkdir(parents=True, exist_ok=True)
+    result: dict = {
+        "date": datetime.datetime.now(datetime.UTC).strftime("%Y-%m-%d %H:%M UTC"),
+        "machine": machine(),
+        "workers": workers,
+        "repeat": args.repeat,
+        "sizes_gib": [small, large],
+        "startup": startup(max(args.repeat, 3)),
+        "imports": imports_seconds(),
+        "runs": [],
+    }
+    plan = [("condensed", small), ("fluid", small)]
+    if not args.no_large:
+        plan.append(("condensed", large))
+    for kind, gib in plan:
+        path = build(kind, gib)
+        cmds = commands(path, workers, scratch)
+        for f in path.rglob("*"):  # the page cache: every kind reads the same warm files
+            if f.is_file():
+                f.read_bytes()
+        timed(cmds["check"])  # numba's cache and Python's bytecode, outside the timings
+        repeat = args.repeat if gib == small else 1
+        m = measure(cmds, repeat, scratch)
+        stored = sum(f.stat().st_size for f in (path / "mass").rglob("*") if f.is_file())
+        nbytes = int(np.load(path.with_suffix(".npy"), mmap_mode="r").nbytes)
+        result["runs"].append(
+            {"kind": kind, "gib": gib, "bytes": nbytes, "stored_bytes": stored, **m}
+        )
+        print(
+            f"{kind} {gib:g} GiB: " + ", ".join(f"{k} {v['seconds']:.2f} s" for k, v in m.items())
+        )
+    shutil.rmtree(scratch, ignore_errors=True)
+    result["load_before"] = load_before
+    result["load_after"] = os.getloadavg()
+    result["seconds"] = time.perf_counter() - started
+    OUT.mkdir(parents=True, exist_ok=True)
+    Path(args.out).write_text(json.dumps(result, indent=2) + "\n")
+    text = render(result, quick=args.quick)
+    print(text)
+    if not args.no_doc:
+        DOC.write_text(text)
+        print(f"wrote {DOC}")
+
+
+def _table(head: tuple[str, str], rows: dict[str, float]) -> list[str]:
+    return [f"| {head[0]} | {head[1]} |", "| --- | ---: |"] + [
+        f"| `{k}` | {v:.2f} |" for k, v in rows.items()
+    ]
+
+
+def render(res: dict, quick: bool) -> str:
+    m = res["machine"]
+    v = m["versions"]
+    lines = [
+        "# Performance record",
+        "",
+        "Written by `make bench` (`bench/bench_performance.py`; the method is in its docstring).",
+        "Every time is a fresh process timed from outside, start-up included, the fastest of "
+        f"{res['repeat']} on the {res['sizes_gib'][0]:g} GiB runs (1 on the larger run); every "
+        "ratio divides by a baseline measured in the same run.",
+        "",
+        f"* date: {res['date']}; massarc commit {m['commit']}"
+        + ("; **quick sizes** (development, not a record)" if quick else ""),
+        f"* machine: {m['usable_cores']} of {m['cores']} cores, {m['cpu']}; "
+        f"{res['workers']} worker threads",
+        f"* versions: python {v['python']}, numpy {v['numpy']}, zarr {v['zarr']}, numcodecs "
+        f"{v['numcodecs']}, numba {v['numba']}, scipy {v['scipy']}",
+        "* load average (1, 5, 15 min) before: "
+        + ", ".join(f"{x:.1f}" for x in res["load_before"])
+        + "; after: "
+        + ", ".join(f"{x:.1f}" for x in res["load_after"])
+        + " (the machine is shared; above about 2 every time stretches and ratios drift up)",
+        f"* duration of this record: {res['seconds'] / 60:.1f} min",
+        "",
+        "## Start-up",
+        "",
+        *_table(("command", "seconds"), res["startup"]),
+        "",
+        "Import time reported by `python -X importtime` (each module alone, in a fresh process):",
+        "",
+        *_table(("module", "seconds"), res["imports"]),
+    ]
+    lines += [
+        "",
+        "## Against the bare decode (check, summarize) and encode (convert)",
+        "",
+        "MB/s: uncompressed masses (10^6 bytes) per second of wall time; compression: "
+        "uncompressed over stored bytes of the mass array.",
+        "",
+        "| run | size | compression | command | seconds | ratio | MB/s | peak RSS (MB) |",
+        "| --- | ---: | ---: | --- | ---: | ---: | ---: | ---: |",
+    ]
+    for run in res["runs"]:
+        comp = run["bytes"] / max(run["stored_bytes"], 1)
+        first = True
+        for kind in ("decode", "check", "summarize", "encode", "convert"):
+            base = run["decode" if kind in ("decode", "check", "summarize") else "encode"]
+            r = run[kind]
+            head = f"| {run['kind']} | {run['gib']:g} GiB | {comp:.1f}x" if first else "| | |"
+            first = False
+            lines.append(
+                f"{head} | {kind} | {r['seconds']:.2f} | {r['seconds'] / base['seconds']:.2f} "
+                f"| {run['bytes'] / r['seconds'] / 1e6:.0f} | {r['peak_rss'] / 1e6:.0f} |"
+            )
+    small = [r for r in res["runs"] if r["kind"] == "condensed"]
+    if len(small) == 2:
+        a, b = small
+        lines += [
+            "",
+            "## Peak memory against run size (condensed run)",
+            "",
+            f"| command | {a['gib']:g} GiB (MB) | {b['gib']:g} GiB (MB) | growth |",
+            "| --- | ---: | ---: | ---: |",
+        ]
+        for kind in ("decode", "check", "summarize", "encode", "convert"):
+            pa, pb = a[kind]["peak_rss"], b[kind]["peak_rss"]
+            lines.append(
+                f"| {kind} | {pa / 1e6:.0f} | {pb / 1e6:.0f} | {100 * (pb / pa - 1):+.0f} % |"
+            )
+    lines += [
+        "",
+        "Reading it: `encode` maps its `.npy` input into memory, so its peak resident set counts",
+        "the input's pages; `convert` reads the same file in slabs. What grows with the run in",
+        "`check` and `summarize` is the per-(replica, snapshot) results the statistics keep",
+        "(totals, extrema, fingerprints, ...), not chunk data: the pass holds a few chunks.",
+        "",
+        "Re-measure: `make bench` (this file; about the duration above, plus about 10 minutes",
+        "to build the runs the first time), or `make bench BENCH=--quick` for a look at",
+        "development sizes. Other benchmarks and the calibration studies:",
+        "`python -m bench --all` or by name (bench/README.md).",
+        "",
+    ]
+    return "\n".join(lines)
+
+
+if __name__ == "__main__":
+    main()
