@@ -18,6 +18,7 @@ __all__ = ["COMMANDS", "cli", "main"]
 COMMANDS: dict[str, tuple[str, str]] = {
     "info": ("info", "Describe runs: model, lattice, boundaries, data, storage."),
     "check": ("check", "Audit runs before publication; exit 1 when a check fails."),
+    "verify": ("verify", "Tell whether stamped runs still match their audit stamp."),
     "summarize": ("summarize", "Compute and store the observables groups publish."),
     "plot": ("plot", "Draw a figure of a run from its stored summaries (PNG, SVG, PDF)."),
     "convert": ("convert", "Convert runs between formats, into or out of an archive."),
