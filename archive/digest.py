@@ -48,7 +48,7 @@ from massarc.schema.spec import (
 )
 
 from .errors import ArchiveError
-from .reader import Run
+from .reader import DECODE_ERRORS, Run
 
 __all__ = ["Digest", "canonical_json", "content_digest"]
 
@@ -158,7 +158,7 @@ def _blocks(run: Run, name: str, arr: zarr.Array, shape: tuple[int, ...]) -> Ite
             hi = min(lo + _BLOCK, n)
             try:
                 yield np.asarray(arr[(*row, slice(lo, hi))])
-            except (ValueError, RuntimeError) as exc:  # zarr's codecs: checksum, decoding
+            except DECODE_ERRORS as exc:
                 at = f"{name}[{', '.join(map(str, (*row, f'{lo}:{hi}')))}]"
                 raise ArchiveError(f"{run.name}: {at} cannot be decoded ({exc})") from None
 
