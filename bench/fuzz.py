@@ -45,30 +45,19 @@ CAP = 2 << 30
 def _worker(target: str, round_: int, n: int, work: Path, note: Path) -> dict:
     """Run ``n`` cases of ``target``; return cases and failures (runs in the child)."""
     sys.path.insert(0, str(ROOT / "tests"))
-    from _fuzz import mutations, new_campaign
-    from hypothesis import HealthCheck, Phase, given, seed, settings
-    from hypothesis import strategies as st
+    from _fuzz import new_campaign, run_cases
 
     campaign = new_campaign(OUT / "fuzz-work" / "seeds", keep=OUT / "fuzz-failures")
     if target not in campaign.targets:
         raise SystemExit(f"unknown target {target}")
 
-    @seed(round_ * 1009 + sorted(campaign.targets).index(target))
-    @settings(
-        max_examples=n,
-        database=None,
-        deadline=None,
-        phases=[Phase.generate],
-        suppress_health_check=list(HealthCheck),
-    )
-    @given(member=st.integers(0, 1 << 10), ops=mutations())
-    def case(member: int, ops: list) -> None:
+    def before(member: int, ops: list) -> None:
         done = campaign.cases.get(target, 0)
         hexed = [[k, p, b.hex()] for k, p, b in ops]
         note.write_text(json.dumps({"done": done, "member": member, "ops": hexed}))
-        campaign.case(target, member, ops)
 
-    case()
+    index = sorted(campaign.targets).index(target)
+    run_cases(campaign, target, n, seed_value=round_ * 1009 + index, before=before)
     return {
         "cases": campaign.cases.get(target, 0),
         "failures": {

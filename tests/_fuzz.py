@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from hypothesis import HealthCheck, Phase, given, seed, settings
 from hypothesis import strategies as st
 
 from massarc.archive import ArchiveError, open_run, open_runs
@@ -32,7 +33,7 @@ from massarc.archive.digest import content_digest
 from massarc.archive.formats import convert, get_format, resolve_metadata
 from massarc.schema import MetadataError, parse_header, parse_metadata, read_metadata_file
 
-__all__ = ["CLEAN", "Campaign", "Failure", "mutate", "mutations", "targets"]
+__all__ = ["CLEAN", "Campaign", "Failure", "mutate", "mutations", "run_cases", "targets"]
 
 ROOT = Path(__file__).resolve().parent.parent
 FIXTURES = ROOT / "tests" / "fixtures" / "v1.1"
@@ -291,3 +292,39 @@ def new_campaign(work: Path | None = None, keep: Path | None = None) -> Campaign
     when None)."""
     work = Path(tempfile.mkdtemp(prefix="massarc-fuzz-")) if work is None else work
     return Campaign(work, targets(work), keep=keep)
+
+
+def run_cases(
+    campaign: Campaign,
+    target: str,
+    n: int,
+    *,
+    seed_value: int | None = None,
+    before: Callable[[int, list[Mutation]], None] | None = None,
+    fail_fast: bool = False,
+) -> None:
+    """Run ``n`` cases of ``target`` drawn by hypothesis: derandomised when ``seed_value``
+    is None, else from that seed; generation only (a case never fails hypothesis unless
+    ``fail_fast``, so there is nothing to shrink). ``before(member, ops)`` is called before
+    each case (the bench notes the case it is about to run)."""
+
+    @settings(
+        max_examples=n,
+        derandomize=seed_value is None,
+        database=None,
+        deadline=None,
+        phases=[Phase.generate],
+        suppress_health_check=list(HealthCheck),
+    )
+    @given(member=st.integers(0, 1 << 10), ops=mutations())
+    def case(member: int, ops: list[Mutation]) -> None:
+        if before is not None:
+            before(member, ops)
+        signature = campaign.case(target, member, ops)
+        if fail_fast:
+            found = campaign.failures.get(target, {})
+            assert signature is None, (signature, found[signature].message if signature else "")
+
+    if seed_value is not None:
+        case = seed(seed_value)(case)
+    case()

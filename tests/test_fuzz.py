@@ -17,10 +17,8 @@ from pathlib import Path
 import h5py
 import numpy as np
 import pytest
-from _fuzz import CLEAN, mutate, mutations, new_campaign
+from _fuzz import CLEAN, mutate, new_campaign, run_cases
 from _hostile import capped_massarc
-from hypothesis import HealthCheck, Phase, given, settings
-from hypothesis import strategies as st
 
 from massarc.archive import ArchiveError, DataError, open_run
 from massarc.archive.formats import get_format
@@ -70,20 +68,7 @@ def _in_process(campaign) -> list[str]:
 def test_short_campaign(campaign, target: str) -> None:
     assert target in _in_process(campaign)
 
-    @settings(
-        max_examples=CASES,
-        derandomize=True,
-        database=None,
-        deadline=None,
-        phases=[Phase.generate],
-        suppress_health_check=list(HealthCheck),
-    )
-    @given(member=st.integers(0, 1 << 10), ops=mutations())
-    def case(member: int, ops: list) -> None:
-        signature = campaign.case(target, member, ops)
-        assert signature is None, (signature, campaign.failures[target][signature].message)
-
-    case()
+    run_cases(campaign, target, CASES, fail_fast=True)
     assert campaign.cases[target] >= CASES
 
 
