@@ -14,6 +14,7 @@ implementation can reproduce it; in short::
 
 Arrays are read a block of whole chunks at a time, so memory stays at about one chunk.
 
+>>> from pathlib import Path
 >>> from massarc.archive import open_run
 >>> d = content_digest(open_run("tests/fixtures/stamp/ring-stamped.zarr"))
 >>> d.value == (Path("tests/fixtures/stamp/ring-stamped.digest").read_text().split()[0])
