@@ -36,7 +36,7 @@ from massarc.schema.spec import TIME
 
 from .errors import ChunkError
 from .limits import max_chunk_bytes
-from .reader import Chunk, ChunkRef, Run
+from .reader import DECODE_ERRORS, Chunk, ChunkRef, Run
 
 __all__ = [
     "ChunkReader",
@@ -151,7 +151,7 @@ class ChunkReader:
         if d is None:
             try:
                 return self.run.read_chunk(ref)
-            except (ValueError, RuntimeError) as exc:  # zarr's codecs: checksum, decoding
+            except DECODE_ERRORS as exc:  # zarr's codecs, a zip store's members
                 raise CorruptChunk(f"{ref.key}: {_first_line(exc)}") from exc
         k = ref.start // d.chunk_shape[1]
         key = f"{d.prefix}c/{ref.replica}/{k}/{self._tail}"

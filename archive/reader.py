@@ -19,6 +19,8 @@ from __future__ import annotations
 import json
 import math
 import os
+import zipfile
+import zlib
 from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -46,6 +48,11 @@ from .remote import CappedStore, remote_run_keys
 from .store import Location, local_path, location_name, open_store
 
 __all__ = ["Chunk", "ChunkRef", "Run", "open_run", "open_runs"]
+
+#: What decoding a damaged chunk raises: zarr's codecs (checksum, decoding), and a zip
+#: store's members (a bad local header, a truncated or corrupt deflate stream; found by
+#: fuzzing, docs/fuzzing.md).
+DECODE_ERRORS = (ValueError, RuntimeError, zipfile.BadZipFile, zlib.error, EOFError)
 
 
 @dataclass(frozen=True)
@@ -232,7 +239,7 @@ class Run:
             key = f"{TIME}/{arr.metadata.encode_chunk_key((k,))}"
             try:
                 out[lo:hi] = np.asarray(arr[lo:hi], dtype=np.float64)
-            except (ValueError, RuntimeError) as exc:  # zarr's codecs: checksum, decoding
+            except DECODE_ERRORS as exc:
                 raise ArchiveError(
                     f"{self.name}: {key} (snapshots {lo}..{hi - 1}) is corrupt: {_first_line(exc)}"
                 ) from None

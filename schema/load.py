@@ -79,6 +79,11 @@ def read_metadata_file(path: str | Path) -> dict[str, Any]:
         text = p.read_text(encoding="utf-8")
     except OSError as exc:
         raise MetadataError([f"cannot read metadata file ({exc.strerror})"], str(p)) from None
+    except UnicodeDecodeError as exc:  # found by fuzzing (docs/fuzzing.md)
+        raise MetadataError(
+            [f"expected UTF-8 text; got byte 0x{exc.object[exc.start]:02x} at offset {exc.start}"],
+            str(p),
+        ) from None
     if p.suffix.lower() == ".json" or (p.suffix.lower() != ".toml" and text.lstrip()[:1] == "{"):
         try:
             data = load_json(text)

@@ -12,11 +12,17 @@ __all__ = [
     "ARCHIVE_VERSION",
     "ATTRIBUTE_KEY",
     "COLLECTION_KIND",
+    "DIGEST_ALGORITHM",
+    "DIGEST_TAG",
+    "DIGEST_VERSION",
     "EVENTS",
     "INFLOW",
     "MASS",
     "OUTFLOW",
     "RUN_KIND",
+    "STAMP",
+    "STAMP_KIND",
+    "STAMP_VERSION",
     "SUMMARIES",
     "SUMMARIES_KIND",
     "SUMMARY_ARRAYS",
@@ -49,6 +55,17 @@ EVENTS = "events"
 SUMMARIES = "summaries"
 #: ``format`` value in the ``massarc`` attribute of the summaries group.
 SUMMARIES_KIND = "massarc-summaries"
+
+#: File at the root of a run holding its audit stamp (FORMAT.md, section 10); not a Zarr
+#: node, so Zarr libraries ignore it, and it is never part of the run's data.
+STAMP = "massarc-stamp.json"
+#: ``format`` value of the stamp document, and its version.
+STAMP_KIND = "massarc-stamp"
+STAMP_VERSION = "1.0"
+#: Domain tag and version of the content digest's byte stream (FORMAT.md, section 10.1).
+DIGEST_TAG = "massarc-content-digest"
+DIGEST_VERSION = 1
+DIGEST_ALGORITHM = "sha256"
 
 #: Arrays of the summaries group: name -> (dimension names, units). Units are words:
 #: "mass" (the run's mass unit), "mass^2", "sites", "1" (a pure number), "time" (the run's

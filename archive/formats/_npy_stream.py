@@ -3,6 +3,8 @@ member of an ``.npz`` (which may be a compressed zip member that only reads forw
 
 from __future__ import annotations
 
+import io
+import tokenize
 from typing import Any, BinaryIO
 
 import numpy as np
@@ -17,17 +19,42 @@ __all__ = ["read_npy_header", "write_npy_stream"]
 def read_npy_header(fp: BinaryIO, name: str) -> tuple[tuple[int, ...], bool, np.dtype]:
     """(shape, fortran_order, dtype) from the start of a ``.npy`` stream; the stream is
     left at the first data byte."""
+    fp = _bounded_header(fp, name)
     try:
         version = np.lib.format.read_magic(fp)
         if version == (1, 0):
             shape, fortran, dtype = np.lib.format.read_array_header_1_0(fp)
         else:
             shape, fortran, dtype = np.lib.format.read_array_header_2_0(fp)
-    except ValueError as exc:
-        raise DataError(f"{name}: not a readable .npy array ({exc})") from None
+    except (ValueError, SyntaxError, TypeError, tokenize.TokenError) as exc:
+        # numpy parses the header dict with Python's tokenizer: a mangled header raises
+        # any of these (found by fuzzing, docs/fuzzing.md)
+        why = " ".join(str(exc).split())[:200]
+        raise DataError(f"{name}: not a readable .npy array ({why})") from None
     if dtype.hasobject:
         raise DataError(f"{name}: expected an integer array; got dtype object (pickled data)")
     return tuple(int(s) for s in shape), bool(fortran), dtype
+
+
+#: Longest ``.npy`` header read (numpy's own default ``max_header_size``).
+MAX_HEADER_BYTES = 10000
+
+
+def _bounded_header(fp: BinaryIO, name: str) -> BinaryIO:
+    """The magic, version and header of a ``.npy`` stream as an in-memory stream, ``fp``
+    left at the first data byte; a header length beyond :data:`MAX_HEADER_BYTES` is refused
+    before it is read (numpy reads the length it is told first, then checks it: a 2 GiB
+    claim allocates 2 GiB; found by fuzzing, docs/fuzzing.md)."""
+    head = fp.read(8)
+    size = 2 if head[6:7] == b"\x01" else 4
+    raw = fp.read(size) if len(head) == 8 else b""
+    length = int.from_bytes(raw, "little") if len(raw) == size else 0
+    if length > MAX_HEADER_BYTES:
+        raise DataError(
+            f"{name}: not a readable .npy array (header of {length} bytes; expected at most "
+            f"{MAX_HEADER_BYTES})"
+        )
+    return io.BytesIO(head + raw + fp.read(length))
 
 
 def write_npy_stream(

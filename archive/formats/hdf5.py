@@ -29,6 +29,7 @@ from ._arrays import array_batches
 from ._axes import axes_for, lattice_axes, parse_axes, times_for
 from ._export import MASK, MissingMask, guard_mask
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
+from ._native import attribute_shape, bounded_attribute, guard_source, probe_structure
 from ._options import guard_options
 from ._signatures import HDF5_MAGIC
 from .registry import Batch, Events, Format, Progress, Source
@@ -36,6 +37,13 @@ from .registry import Batch, Events, Format, Progress, Source
 __all__ = ["HDF5Format"]
 
 
+def _attribute(node: Any, key: str, label: str) -> Any:
+    """``node.attrs[key]``, refused before it is read when it claims too many values."""
+    bounded_attribute(attribute_shape(node.attrs.get_id(key)), label)
+    return node.attrs[key]
+
+
+@guard_source
 class HDF5Source(Source):
     unit = "snapshots"
 
@@ -44,6 +52,7 @@ class HDF5Source(Source):
 
         self.name = str(path)
         self.options = options
+        probe_structure("hdf5", path, self.name)
         try:
             self.file = h5py.File(path, "r")
         except OSError as exc:
@@ -75,7 +84,7 @@ class HDF5Source(Source):
         node = self.mass
         while True:
             if attr in node.attrs:
-                return node.attrs[attr]
+                return _attribute(node, attr, self.label)
             if node.name == "/":
                 raise KeyError(attr)
             node = node.parent
@@ -85,7 +94,8 @@ class HDF5Source(Source):
         data: dict[str, Any] = {}
         for node in (self.file, self.mass):
             if key in node.attrs:
-                data = metadata_from_json(node.attrs[key], f"{self.name}: attribute {key}")
+                label = f"{self.name}: attribute {key}"
+                data = metadata_from_json(_attribute(node, key, label), label)
         return data
 
     def mapped(self) -> dict[str, Any]:

@@ -31,6 +31,7 @@ from ._arrays import array_batches
 from ._axes import lattice_axes, times_for
 from ._export import MASK, MissingMask, guard_mask
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
+from ._native import guard_source, probe_structure
 from ._options import guard_options
 from ._signatures import HDF5_MAGIC, NETCDF_CLASSIC_MAGIC
 from .registry import Batch, Events, Format, Progress, Source
@@ -51,6 +52,7 @@ class _LazyVariable:
         return np.asarray(self.var[key].values)
 
 
+@guard_source
 class NetCDFSource(Source):
     unit = "snapshots"
 
@@ -59,6 +61,7 @@ class NetCDFSource(Source):
 
         self.name = str(path)
         self.options = options
+        probe_structure("netcdf", path, self.name)
         try:
             self.ds = xr.open_dataset(
                 path, decode_times=False, mask_and_scale=False, decode_cf=False

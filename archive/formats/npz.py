@@ -15,6 +15,7 @@ member chunk by chunk.
 
 from __future__ import annotations
 
+import math
 import struct
 import zipfile
 from collections.abc import Iterator
@@ -32,6 +33,7 @@ from ._arrays import SequentialArray, array_batches
 from ._axes import axes_for, times_for
 from ._export import MASK, MissingMask, guard_mask
 from ._metadata import meta_json, metadata_from_json
+from ._native import guard_source
 from ._npy_stream import read_npy_header, write_npy_stream
 from ._options import as_bool, guard_options
 from ._signatures import ZIP_MAGIC
@@ -42,6 +44,7 @@ __all__ = ["NpzFormat"]
 _LOCAL_HEADER = struct.Struct("<4s5H3L2H")
 
 
+@guard_source
 class NpzSource(Source):
     unit = "snapshots"
 
@@ -72,11 +75,23 @@ class NpzSource(Source):
         return f"{self.name}: array {key!r}"
 
     def _small(self, key: str) -> np.ndarray:
-        with self.zf.open(self.members[key]) as fp:
-            try:
-                return np.lib.format.read_array(fp, allow_pickle=False)
-            except (ValueError, EOFError, zipfile.BadZipFile) as exc:
-                raise DataError(f"{self._label(key)}: cannot read ({exc})") from None
+        """A small member read whole (times, series, metadata), bounded by the member's
+        stated size before anything is allocated."""
+        label = self._label(key)
+        info = self.zf.getinfo(self.members[key])
+        with self.zf.open(info) as fp:
+            shape, fortran, dt = read_npy_header(fp, label)
+            need = math.prod(shape) * dt.itemsize
+            if need > info.file_size:
+                raise DataError(
+                    f"{label}: truncated: the header promises {need} bytes; the member holds "
+                    f"{info.file_size}"
+                )
+            data = fp.read(need)
+        if len(data) < need:
+            raise DataError(f"{label}: truncated: {len(data)} of {need} bytes")
+        flat = np.frombuffer(data, dtype=dt).copy()
+        return flat.reshape(shape[::-1]).T if fortran else flat.reshape(shape)
 
     def hints(self) -> dict[str, Any]:
         key = self.options.get("metadata", "metadata")

@@ -26,6 +26,7 @@ EXIT_INTERNAL = 3
 COMMANDS: dict[str, tuple[str, str]] = {
     "info": ("info", "Describe runs: model, lattice, boundaries, data, storage."),
     "check": ("check", "Audit runs before publication; exit 1 when a check fails."),
+    "verify": ("verify", "Tell whether stamped runs still match their audit stamp."),
     "summarize": ("summarize", "Compute and store the observables groups publish."),
     "plot": ("plot", "Draw a figure of a run from its stored summaries (PNG, SVG, PDF)."),
     "compare": ("compare", "Test whether two runs of one model agree; exit 1 when not."),

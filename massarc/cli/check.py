@@ -5,12 +5,19 @@ Exit status: 0 when no check failed, 1 when a check failed or raised, 2 when an 
 could not be read (not a Zarr group, not a massarc run, unknown major format version) or
 the command line or configuration was wrong, with one line ``massarc check: error: ...``
 on stderr.
+
+``--stamp`` writes the audit stamp into every run audited (FORMAT.md, section 10): the
+massarc version, the time, each check's result with its options and where each option came
+from, and the content digest. Every run must be a complete run in a writable local
+directory; otherwise nothing is audited or written and the exit status is 2. The stamp
+records failing verdicts too; ``massarc verify`` later tells whether the run still matches.
 """
 
 from __future__ import annotations
 
 import sys
 from pathlib import Path
+from typing import Any
 
 import click
 
@@ -89,6 +96,12 @@ def _listing() -> str:
 @click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
 @scheduler_option
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar; table: only non-passing.")
+@click.option(
+    "--stamp",
+    is_flag=True,
+    help="Record the audit and the content digest inside each run (complete local runs only; "
+    "see massarc verify).",
+)
 def command(
     runs: tuple[str, ...],
     rendering: str,
@@ -103,6 +116,7 @@ def command(
     workers: int | None,
     scheduler: str | None,
     quiet: bool,
+    stamp: bool,
 ) -> None:
     """Audit runs: metadata, integrity, time order, masses, conservation, and the
     statistical checks (see --list)."""
@@ -133,6 +147,8 @@ def command(
     with bad_input(_NAME):
         for location in runs:
             opened.extend(open_for_audit(location))
+    if stamp:
+        _refuse_unstampable(opened)
     with (
         using_scheduler(_NAME, scheduler, quiet=quiet) as dask_scheduler,
         progress_bar("auditing", quiet=quiet) as progress,
@@ -153,6 +169,8 @@ def command(
             )
         except ConfigError as exc:
             die(_NAME, str(exc))
+    if stamp:
+        _stamp(opened, report, settings, config, sets)
     if output is not None:
         try:
             with Path(output).open("w", encoding="utf-8") as out:
@@ -167,3 +185,57 @@ def command(
     else:
         click.echo(render(report, rendering), nl=False)
     sys.exit(report.exit_code)
+
+
+def _refuse_unstampable(runs: list) -> None:
+    """Exit 2 before anything is audited when a run cannot be stamped."""
+    from massarc.archive.stamp import stamp_problem
+
+    for run in runs:
+        problem = stamp_problem(run)
+        if problem is not None:
+            die(_NAME, f"{run.name}: cannot stamp: {problem}")
+
+
+def _origins(settings: Any, config: str | None, sets: tuple[str, ...]) -> dict:
+    """``{(check id, option): where its value came from}`` for every non-default option:
+    ``--set`` or the settings file."""
+    out = {}
+    file_settings = resolve_settings(config=config) if settings.source else None
+    for cid, opts in (file_settings.options if file_settings else {}).items():
+        for name in opts:
+            out[(cid, name)] = settings.source
+    for item in sets:
+        cid, _, name = item.partition("=")[0].strip().partition(".")
+        out[(cid, name)] = "--set"
+    return out
+
+
+def _stamp(runs: list, report: Any, settings: Any, config: str | None, sets: tuple) -> None:
+    """Write the stamp of every run (its digest recomputed after the audit)."""
+    from massarc.archive import ArchiveError
+    from massarc.archive.digest import content_digest
+    from massarc.archive.stamp import stamp_document, write_stamp
+
+    origins = _origins(settings, config, sets)
+    registry = available_checks()
+    for run, run_report in zip(runs, report.runs, strict=True):
+        checks = []
+        for result in run_report.checks:
+            cls = registry.get(result.id)
+            values = cls.option_values(settings.options.get(result.id)) if cls else {}
+            options = {
+                name: {"value": value, "from": origins.get((result.id, name), "default")}
+                for name, value in values.items()
+            }
+            checks.append({**result.model_dump(mode="json"), "options": options})
+        audit_record = {
+            "status": run_report.status,
+            "strict": report.strict,
+            "config": settings.source,
+            "checks": checks,
+        }
+        try:
+            write_stamp(run, stamp_document(content_digest(run), audit_record))
+        except ArchiveError as exc:
+            die(_NAME, str(exc))
