@@ -17,6 +17,7 @@ from typing import Any
 from pydantic import BaseModel, ConfigDict, Field
 
 from ..engine.result import Status, Where
+from .model import OptionSetting
 from .sweep import SweepRow
 
 __all__ = ["CheckDocument", "ReportDocument", "RunDocument", "report_schema"]
@@ -60,6 +61,12 @@ class ReportDocument(_Frozen):
     massarc_version: str
     seconds: float = Field(ge=0)
     config: str | None = Field(description="The settings file that applied, or null.")
+    options: list[OptionSetting] = Field(
+        description="Every check option not at its default, and where its value came from."
+    )
+    ignored: list[str] = Field(
+        description="Configuration files found inside the audited runs and not read."
+    )
     sweep: list[SweepRow] = Field(
         description="The sweep table: one row per run, its parameters and verdicts."
     )

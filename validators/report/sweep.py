@@ -16,18 +16,17 @@ It is part of every rendering of a report of several runs: below the check table
 
 from __future__ import annotations
 
-from typing import IO, Any
+from typing import IO, TYPE_CHECKING, Any
 
 from pydantic import BaseModel, ConfigDict
-from rich import box
-from rich.console import Console
-from rich.table import Table
-from rich.text import Text
 
 from massarc.schema.sweep import SweepPoint, write_rows
 
 from ..engine.result import Status
 from .model import AuditReport, RunReport
+
+if TYPE_CHECKING:
+    from rich.console import Console
 
 __all__ = ["STEADY_CHECK", "SweepRow", "render_sweep", "sweep_csv", "sweep_rows"]
 
@@ -97,6 +96,10 @@ def _num(value: float | None) -> str:
 
 def render_sweep(report: AuditReport, console: Console, styles: dict[str, str]) -> None:
     """Print the sweep table on ``console`` (statuses in ``styles``)."""
+    from rich import box  # imported when a table is drawn: --list and JSON need none of it
+    from rich.table import Table
+    from rich.text import Text
+
     table = Table(box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, expand=False)
     heads = ("run", "model", "L", "rho", "rho_c", "condensed", "stationary", "from", "valid")
     for name in heads:
