@@ -120,6 +120,9 @@ _PROBE = """
 import resource, sys
 cap = int(sys.argv[3])
 resource.setrlimit(resource.RLIMIT_AS, (cap, cap))
+# CPU seconds: PROBE_SECONDS and a margin, so that a probe whose parent was killed (and so
+# never times it out) cannot spin on a damaged file for ever
+resource.setrlimit(resource.RLIMIT_CPU, (70, 70))
 try:
     if sys.argv[1] == "hdf5":
         import h5py
