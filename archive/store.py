@@ -99,8 +99,11 @@ def _guard_zip(path: Path, name: str) -> None:
     try:
         with zipfile.ZipFile(path) as z:
             members = z.infolist()
-    except (zipfile.BadZipFile, OSError) as exc:
-        raise ArchiveError(f"{name}: expected a readable zip file ({exc})") from None
+    except (zipfile.BadZipFile, OSError, NotImplementedError, UnicodeDecodeError) as exc:
+        # a damaged central directory can claim an unsupported zip version or undecodable
+        # member names (found by fuzzing, docs/fuzzing.md)
+        why = " ".join(str(exc).split())[:200]
+        raise ArchiveError(f"{name}: expected a readable zip file ({why})") from None
     for m in members:
         if m.file_size > cap:
             raise ArchiveError(

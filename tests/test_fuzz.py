@@ -217,3 +217,56 @@ def test_hdf5_file_that_makes_the_library_hang(campaign, tmp_path: Path, monkeyp
     monkeypatch.setattr(_native, "PROBE_SECONDS", 3.0)
     with pytest.raises(DataError, match="did not finish reading its structure in 3 s"):
         get_format("hdf5").read(bad)
+
+
+def _npy_with_shape(shape: str) -> bytes:
+    """A version 1.0 ``.npy`` whose header states ``shape`` (text), followed by 80 bytes."""
+    head = f"{{'descr': '<u2', 'fortran_order': False, 'shape': {shape}, }}"
+    head += " " * (-(10 + len(head) + 1) % 64) + "\n"
+    return b"\x93NUMPY\x01\x00" + len(head).to_bytes(2, "little") + head.encode() + bytes(80)
+
+
+@pytest.mark.parametrize("shape", ["(-2, 4, 5)", "(0, 4, 5)"])
+def test_npy_with_a_negative_or_empty_shape(tmp_path: Path, shape: str) -> None:
+    # found in the long campaign (rounds 2-5): ValueError "negative dimensions are not
+    # allowed" and OverflowError "memory mapped length must be positive" from np.memmap
+    path = tmp_path / "shape.npy"
+    path.write_bytes(_npy_with_shape(shape))
+    with pytest.raises(DataError, match="expected a shape of positive lengths"):
+        get_format("npy").read(path)
+
+
+def test_csv_long_with_a_header_of_only_the_replica(tmp_path: Path) -> None:
+    # found in the long campaign: IndexError from a header naming only the replica column
+    path = tmp_path / "empty-header.csv"
+    path.write_text("replica\n0,0.0,0,3\n")
+    with pytest.raises(DataError, match="expected a header naming time, site and mass"):
+        get_format("csv-long").read(path)
+
+
+@pytest.mark.parametrize(
+    ("patch", "why"),
+    [(b"\x9c\x00", "zip file version"), (None, "can't decode")],
+    ids=["version", "name"],
+)
+def test_zip_whose_directory_claims_a_new_version_or_a_bad_name(
+    tmp_path: Path, patch: bytes | None, why: str
+) -> None:
+    # found in the long campaign: NotImplementedError ("zip file version 15.6") and
+    # UnicodeDecodeError (a member name flagged UTF-8 that is not) from zipfile itself
+    import zipfile
+
+    path = tmp_path / "run.zarr.zip"
+    with zipfile.ZipFile(path, "w") as z:
+        z.writestr("zarr.json", "{}")
+    raw = bytearray(path.read_bytes())
+    central = raw.rindex(b"PK\x01\x02")
+    if patch is not None:  # "version needed to extract" of the central directory entry
+        raw[central + 6 : central + 8] = patch
+    else:  # the UTF-8 flag set on a name that is not UTF-8
+        raw[central + 9] |= 0x08  # general purpose flag bit 11
+        start = central + 46
+        raw[start : start + 1] = b"\xa4"
+    path.write_bytes(bytes(raw))
+    with pytest.raises(ArchiveError, match=f"expected a readable zip file .*{why}"):
+        open_run(path)

@@ -33,7 +33,10 @@ def read_npy_header(fp: BinaryIO, name: str) -> tuple[tuple[int, ...], bool, np.
         raise DataError(f"{name}: not a readable .npy array ({why})") from None
     if dtype.hasobject:
         raise DataError(f"{name}: expected an integer array; got dtype object (pickled data)")
-    return tuple(int(s) for s in shape), bool(fortran), dtype
+    dims = tuple(int(s) for s in shape)
+    if any(d < 1 for d in dims):  # negative or empty: numpy's memmap and readers fail
+        raise DataError(f"{name}: expected a shape of positive lengths; got {dims}")
+    return dims, bool(fortran), dtype
 
 
 #: Longest ``.npy`` header read (numpy's own default ``max_header_size``).

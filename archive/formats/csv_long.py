@@ -56,6 +56,10 @@ class _OpenSnapshot:
 def _layout(columns: list[str], name: str, line: int) -> tuple[int, int]:
     """(lead columns, site columns) after checking the header."""
     lead = 2 if columns[:1] == ["replica"] else 1
+    if len(columns) < lead:  # an empty header line (found by fuzzing, docs/fuzzing.md)
+        raise DataError(
+            f"{name}:{line}: expected a header naming time, site and mass columns; got {columns!r}"
+        )
     rest = columns[lead:]
     want = [["time", "site", "mass"], ["time", "y", "x", "mass"]]
     for w in want:
