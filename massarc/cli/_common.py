@@ -155,6 +155,69 @@ def metadata_options(func: _F) -> _F:
     )
 
 
+def settings_options(func: _F) -> _F:
+    """The audit settings ``check`` and ``report`` share: ``--strict/--no-strict``,
+    ``--skip``, ``--only``, ``--set ID.OPTION=VALUE`` and ``--config``."""
+    options = [
+        click.option("--strict/--no-strict", default=None, help="Warnings count as failures."),
+        click.option(
+            "--skip", multiple=True, metavar="ID", help="Do not run this check (repeatable)."
+        ),
+        click.option(
+            "--only", multiple=True, metavar="ID", help="Run only this check (repeatable)."
+        ),
+        click.option(
+            "--set",
+            "sets",
+            multiple=True,
+            metavar="ID.OPTION=VALUE",
+            help="Set a check option, e.g. conservation.tolerance=0 (repeatable).",
+        ),
+        click.option(
+            "--config",
+            type=click.Path(dir_okay=False),
+            help="Settings file (default: the nearest massarc.toml, or pyproject.toml with "
+            "[tool.massarc], from the current directory up; never a file that travels with "
+            "the runs).",
+        ),
+    ]
+    for option in reversed(options):
+        func = option(func)
+    return func
+
+
+def audit_with_settings(
+    command: str,
+    runs: list[Any],
+    settings: Any,
+    *,
+    progress: Progress,
+    workers: int | None,
+    scheduler: Any = None,
+) -> Any:
+    """The audit of ``runs`` under ``settings`` (an ``AuditSettings``), recording where each
+    option came from and the configuration files ignored; a settings error ends
+    ``command`` with one line."""
+    from massarc.validators import ConfigError, audit  # only the auditing commands need it
+
+    try:
+        return audit(
+            runs,
+            checks=settings.only,
+            skip=settings.skip,
+            options=settings.options,
+            strict=settings.strict,
+            progress=progress,
+            workers=workers,
+            config=settings.source,
+            scheduler=scheduler,
+            origins=settings.origins,
+            ignored=settings.ignored,
+        )
+    except ConfigError as exc:
+        die(command, str(exc))
+
+
 def rendering_option(renderings: tuple[str, ...], help_text: str) -> Callable[[_F], _F]:
     """The ``--as NAME`` option: how a command prints its result (the first is the
     default); the command receives it as ``rendering``."""

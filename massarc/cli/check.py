@@ -24,7 +24,6 @@ import click
 from massarc.archive.enclosing import enclosing_runs
 from massarc.validators import (
     ConfigError,
-    audit,
     available_checks,
     open_for_audit,
     render,
@@ -33,12 +32,14 @@ from massarc.validators import (
 from massarc.validators.report import RENDERINGS, render_table
 
 from ._common import (
+    audit_with_settings,
     bad_input,
     command_class,
     die,
     progress_bar,
     rendering_option,
     scheduler_option,
+    settings_options,
     using_scheduler,
 )
 
@@ -69,22 +70,7 @@ def _listing() -> str:
     "valid).",
 )
 @click.option("--output", "-o", type=click.Path(dir_okay=False), help="Write the report here.")
-@click.option("--strict/--no-strict", default=None, help="Warnings count as failures.")
-@click.option("--skip", multiple=True, metavar="ID", help="Do not run this check (repeatable).")
-@click.option("--only", multiple=True, metavar="ID", help="Run only this check (repeatable).")
-@click.option(
-    "--set",
-    "sets",
-    multiple=True,
-    metavar="ID.OPTION=VALUE",
-    help="Set a check option, e.g. conservation.tolerance=0 (repeatable).",
-)
-@click.option(
-    "--config",
-    type=click.Path(dir_okay=False),
-    help="Settings file (default: the nearest massarc.toml, or pyproject.toml with "
-    "[tool.massarc], from the current directory up; never a file that travels with the runs).",
-)
+@settings_options
 @click.option("--list", "list_", is_flag=True, help="List the registered checks and exit.")
 @click.option(
     "--from-files",
@@ -153,22 +139,14 @@ def command(
         using_scheduler(_NAME, scheduler, quiet=quiet) as dask_scheduler,
         progress_bar("auditing", quiet=quiet) as progress,
     ):
-        try:
-            report = audit(
-                opened,
-                checks=settings.only,
-                skip=settings.skip,
-                options=settings.options,
-                strict=settings.strict,
-                progress=progress,
-                workers=workers,
-                config=settings.source,
-                scheduler=dask_scheduler,
-                origins=settings.origins,
-                ignored=settings.ignored,
-            )
-        except ConfigError as exc:
-            die(_NAME, str(exc))
+        report = audit_with_settings(
+            _NAME,
+            opened,
+            settings,
+            progress=progress,
+            workers=workers,
+            scheduler=dask_scheduler,
+        )
     if stamp:
         _stamp(opened, report, settings, config, sets)
     if output is not None:

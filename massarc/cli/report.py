@@ -27,9 +27,16 @@ from massarc.archive import ArchiveError, Run
 from massarc.archive.store import local_path
 from massarc.summaries import SummaryOutcome, summarize_in_memory
 from massarc.summaries.report import PageRun, report_page
-from massarc.validators import ConfigError, audit, open_for_audit, resolve_settings
+from massarc.validators import ConfigError, open_for_audit, resolve_settings
 
-from ._common import bad_input, command_class, die, progress_bar
+from ._common import (
+    audit_with_settings,
+    bad_input,
+    command_class,
+    die,
+    progress_bar,
+    settings_options,
+)
 
 __all__ = ["command"]
 
@@ -102,22 +109,7 @@ def _write(text: str, output: Path) -> None:
     help="Compute summaries for runs that have none stored, for the page only "
     "(held in memory; the runs are not written).",
 )
-@click.option("--strict/--no-strict", default=None, help="Warnings count as failures.")
-@click.option("--skip", multiple=True, metavar="ID", help="Do not run this check (repeatable).")
-@click.option("--only", multiple=True, metavar="ID", help="Run only this check (repeatable).")
-@click.option(
-    "--set",
-    "sets",
-    multiple=True,
-    metavar="ID.OPTION=VALUE",
-    help="Set a check option, e.g. conservation.tolerance=0 (repeatable).",
-)
-@click.option(
-    "--config",
-    type=click.Path(dir_okay=False),
-    help="Settings file, as for massarc check (default: the nearest massarc.toml, "
-    "or pyproject.toml with [tool.massarc]).",
-)
+@settings_options
 @click.option("--workers", type=click.IntRange(min=1), help="Threads reading chunks.")
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar, no closing line.")
 def command(
@@ -153,19 +145,7 @@ def command(
     if home is not None:
         die(_NAME, f"{output}: lies inside {home}; the report never writes into a run")
     with progress_bar("auditing", quiet=quiet) as progress:
-        try:
-            report = audit(
-                opened,
-                checks=settings.only,
-                skip=settings.skip,
-                options=settings.options,
-                strict=settings.strict,
-                progress=progress,
-                workers=workers,
-                config=settings.source,
-            )
-        except ConfigError as exc:
-            die(_NAME, str(exc))
+        report = audit_with_settings(_NAME, opened, settings, progress=progress, workers=workers)
     pages = []
     for run, checked in zip(opened, report.runs, strict=True):
         outcome, source, problem = _summaries(run, summarize)
