@@ -4,12 +4,13 @@ test, not as a machine out of memory or a hung suite."""
 
 from __future__ import annotations
 
+import json
 import os
 import subprocess
 import sys
 from pathlib import Path
 
-__all__ = ["MEMORY_CAP", "capped_massarc"]
+__all__ = ["MEMORY_CAP", "assert_refused_before_decoding", "capped_massarc"]
 
 #: Address space of the child: 1 GiB (issue 11), above the 0.58 to 0.67 GiB that an honest
 #: audit of the samples reserves with the NumPy kernels (VmPeak measured on 2026-12-03,
@@ -50,3 +51,20 @@ def capped_massarc(*args: str, timeout: float = 60.0) -> subprocess.CompletedPro
         env=env,
         check=False,
     )
+
+
+def assert_refused_before_decoding(run: Path, out: Path, message: str) -> str:
+    """Under the cap: ``check`` fails ``schema`` with ``message`` and decodes no chunk,
+    ``info`` shows ``message``, and ``convert`` to ``out`` exits 2 naming it; returns
+    ``convert``'s stderr."""
+    check = capped_massarc("check", str(run), "--as", "json", timeout=60)
+    assert check.returncode == 1, check.stderr[-2000:]
+    (report,) = json.loads(check.stdout)["runs"]
+    schema = next(c for c in report["checks"] if c["id"] == "schema")
+    assert schema["status"] == "fail" and message in schema["message"]
+    assert report["chunks_read"] == 0
+    info = capped_massarc("info", str(run), timeout=60)
+    assert info.returncode == 0 and message in info.stdout, info.stderr[-2000:]
+    convert = capped_massarc("convert", str(run), str(out), timeout=60)
+    assert convert.returncode == 2 and message in convert.stderr, convert.stderr[-2000:]
+    return convert.stderr
