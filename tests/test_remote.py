@@ -177,7 +177,7 @@ def test_an_oversized_object_is_refused_not_downloaded(
     bucket.pipe("runs/bomb/depot-ring.zarr/mass/c/1/0/0", os.urandom(chunk))
     capped = {**env, "MASSARC_MAX_CHUNK_BYTES": str(12288 * 64)}
     out = massarc(capped, "check", "--as", "json", "--only", "integrity", "s3://runs/bomb")
-    (result,) = [c for r in json.loads(out.stdout)["runs"] for c in r["checks"]]
+    (result,) = (c for r in json.loads(out.stdout)["runs"] for c in r["checks"])
     assert result["status"] == "fail"
     assert "mass/c/1/0/0" in result["message"]
     assert f"larger than {12288 * 64 + (1 << 20)} bytes" in result["message"]
