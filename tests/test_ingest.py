@@ -119,7 +119,10 @@ def test_sigkill_of_massarc_then_resume_with_the_whole_stream(tmp_path, meta):
     with open(stream, "rb") as f:
         ingest(f, reference, meta=meta)
     dst = tmp_path / "live.zarr"
-    feeder = _feed(stream, dst, 0.08)  # slower than the commit grace
+    # slower than the commit grace; then it holds half of line 21 (snapshot 6 of replica 1:
+    # header, marker, 12 lines, marker, 6 lines), so that the kill lands inside replica 1
+    # however loaded the machine is
+    feeder = _feed(stream, dst, 0.08, stop=21)
     proc = _ingest("-", dst, meta, stdin=feeder.stdout)
     feeder.stdout.close()
     # kill inside replica 1, after some of it is committed
