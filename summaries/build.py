@@ -87,10 +87,12 @@ def build_summaries(
         arrays[name] = StoredArray(dims, np.asarray(data), attrs)
 
     threshold = {"above": col.above, "rule": col.rule}
-    put("largest_mass", snap.maximum, "largest site mass")
-    put("largest_site", snap.argmax, "flat (C-order) index of the first site holding it")
+    as64 = np.int64  # the stored summaries keep 64-bit integers (the statistic may be narrower)
+    put("largest_mass", snap.maximum.astype(as64), "largest site mass")
+    first_site = "flat (C-order) index of the first site holding it"
+    put("largest_site", snap.argmax.astype(as64), first_site)
     put("second_moment", snap.sum_sq, "sum over sites of m^2")
-    put("occupied", snap.occupied, "sites with m > 0")
+    put("occupied", snap.occupied.astype(as64), "sites with m > 0")
     put("condensates", cond.count, "sites above the condensate threshold", threshold=threshold)
     put("condensate_mass", cond.mass, "mass on sites above the threshold", threshold=threshold)
     with np.errstate(invalid="ignore", divide="ignore"):

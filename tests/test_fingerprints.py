@@ -109,8 +109,11 @@ def test_the_hashed_subset_is_shared_by_replicas_and_has_its_density():
     fp = _stat(x, floor=0, fraction=0.25).finish([])
     assert fp.sampled.shape == (4000,)
     assert abs(fp.sampled.mean() - 0.25) < 0.03  # binomial: sd 0.007
-    hashed = (fp.full != 0) & (fp.full_anchored != 0)
-    np.testing.assert_array_equal(hashed, np.broadcast_to(fp.sampled, hashed.shape))
+    # the full hashes are kept for the sampled snapshots only, in the order of time
+    np.testing.assert_array_equal(fp.slot >= 0, fp.sampled)
+    np.testing.assert_array_equal(fp.slot[fp.sampled], np.arange(fp.sampled.sum()))
+    assert fp.full.shape == fp.full_anchored.shape == (3, fp.sampled.sum())
+    assert np.all(fp.full != 0) and np.all(fp.full_anchored != 0)
 
 
 def test_the_anchors_come_from_the_snapshots_loop_when_both_run(tmp_path, monkeypatch):

@@ -18,6 +18,7 @@ located (see :mod:`massarc.archive.stats._kernels` for the exact semantics). Whe
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -37,6 +38,9 @@ Location = tuple[int, int, int]  # (replica, snapshot, flat site index)
 @dataclass(frozen=True)
 class SnapshotStats:
     """Arrays shaped (replica, snapshot); ``valid`` is False where the chunk was unreadable.
+    ``total`` is int64; ``maximum`` and ``minimum`` are int32 for data of 16 bits or less
+    and int32 data (else int64); ``occupied`` and ``argmax`` are int32 on lattices of fewer
+    than 2^31 sites. Cast before arithmetic that could leave those ranges (squares).
 
     ``argmax`` is the flat (C-order) site index of the largest mass. The ``first_*`` fields
     give the first (replica, snapshot, flat site) holding a negative, a fractional, or a
@@ -69,15 +73,21 @@ class SnapshotStatistic(Statistic):
     def __init__(self, run: Any, **options: Any) -> None:
         super().__init__(run, **options)
         r, t = run.n_replicas, run.n_snapshots
+        dt = run.dtype
+        # 32-bit where every value fits: the arrays are kept for the whole audit, one entry
+        # per (replica, snapshot), and long runs have millions of those
+        narrow = dt.kind in "ui" and (dt.itemsize <= 2 or dt == np.dtype(np.int32))
+        extreme = np.int32 if narrow else np.int64
+        sites = getattr(run, "sites", None)
+        site = np.int32 if sites is not None and math.prod(sites) < 2**31 else np.int64
         self._total = np.zeros((r, t), np.int64)
-        self._max = np.zeros((r, t), np.int64)
-        self._min = np.zeros((r, t), np.int64)
+        self._max = np.zeros((r, t), extreme)
+        self._min = np.zeros((r, t), extreme)
         self._sq = np.zeros((r, t), np.float64)
-        self._occ = np.zeros((r, t), np.int64)
-        self._argmax = np.zeros((r, t), np.int64)
+        self._occ = np.zeros((r, t), site)
+        self._argmax = np.zeros((r, t), site)
         self._valid = np.zeros((r, t), bool)
         self._firsts: dict[str, list[tuple[Location, int]]] = {k: [] for k in _KINDS}
-        dt = run.dtype
         self._sentinel = sentinel(dt) if dt.kind in "ui" else None
         self.plan = Plan(sentinel=self._sentinel, backend=backend_for(run))
 

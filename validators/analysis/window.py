@@ -287,7 +287,12 @@ def compute_window(stats: Any, ctx: CheckContext, settings: WindowSettings) -> W
     meta = ctx.meta
     times = np.asarray(ctx.run.times, dtype=np.float64)
     keep = np.asarray(stats.valid).all(axis=1)
-    series = {k: np.asarray(getattr(stats, k), dtype=np.float64)[keep] for k in OBSERVABLES}
+    # the stored arrays themselves where every replica is readable (no copy); each is made
+    # floating point in turn below, so that one copy of a (replica, snapshot) array lives
+    series = {
+        k: np.asarray(getattr(stats, k)) if keep.all() else np.asarray(getattr(stats, k))[keep]
+        for k in OBSERVABLES
+    }
     reps, n_snap = series["maximum"].shape
     tau_relax = relaxation_time(meta) if meta is not None else None
     run_time = _elapsed(times[:n_snap])
@@ -318,6 +323,7 @@ def compute_window(stats: Any, ctx: CheckContext, settings: WindowSettings) -> W
     spacing = float(span / (n_win - 1)) if n_win > 1 else float("nan")
     obs: dict[str, ObservableWindow] = {}
     for k, y in series.items():
+        y = np.asarray(y, dtype=np.float64)
         w = y[:, start:]
         if k not in live or np.ptp(w) == 0:  # constant over the run, or in the window
             nan = float("nan")

@@ -43,6 +43,10 @@ __all__ = [
 SOKAL_C = 5.0
 
 
+#: Padded values transformed at once by :func:`autocovariance` (2 MiB of float64).
+_BLOCK_VALUES = 1 << 18
+
+
 def _fft_length(n: int) -> int:
     """A length >= 2n with small prime factors (zero padding avoids circular wrap)."""
     m = 1
@@ -61,10 +65,17 @@ def autocovariance(x: np.ndarray, axis: int = -1) -> np.ndarray:
     n = a.shape[-1]
     if n == 0:
         raise ValueError("expected a series with at least one value; got an empty one")
-    d = a - a.mean(axis=-1, keepdims=True)
-    f = np.fft.rfft(d, n=_fft_length(n), axis=-1)
-    acov = np.fft.irfft(f * np.conj(f), axis=-1)[..., :n] / n
-    return np.moveaxis(acov, -1, axis)
+    m = _fft_length(n)
+    rows = a.reshape(-1, n)
+    acov = np.empty(rows.shape, np.float64)
+    # a block of series at a time: the transforms need about 40 bytes per padded value, so
+    # long runs' (replica, snapshot) arrays are transformed a few series at a time
+    step = max(1, _BLOCK_VALUES // m)
+    for lo in range(0, len(rows), step):
+        d = rows[lo : lo + step] - rows[lo : lo + step].mean(axis=-1, keepdims=True)
+        f = np.fft.rfft(d, n=m, axis=-1)
+        acov[lo : lo + step] = np.fft.irfft(f * np.conj(f), axis=-1)[..., :n] / n
+    return np.moveaxis(acov.reshape(a.shape), -1, axis)
 
 
 def autocorrelation(x: np.ndarray, axis: int = -1) -> np.ndarray:

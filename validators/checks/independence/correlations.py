@@ -50,20 +50,23 @@ def correlation_tests(
     """Pair tests of the snapshot observables and the coarse profiles, how many tests were
     tried (for Bonferroni), and the smallest p-value a copied replica would get (before
     Bonferroni; 1 when nothing could show it)."""
-    series: dict[str, np.ndarray] = {}
     valid = snap.valid
-    for name, arr in (
+    sources: list[tuple[str, Any]] = [
         ("largest mass", snap.maximum),
         ("sum of squares", snap.sum_sq),
         ("occupied sites", snap.occupied),
-    ):
-        series[name] = np.where(valid, np.asarray(arr, dtype=np.float64), np.nan)
+    ]
     if profiles is not None and profiles.mass.shape[1] >= 4:
-        series["coarse profile"] = profiles.mass
+        sources.append(("coarse profile", None))
     out = []
     tried = 0
     copy = 1.0
-    for name, x in series.items():
+    for name, arr in sources:  # one full-length series in memory at a time
+        if arr is None:
+            x = profiles.mass
+        else:
+            x = np.asarray(arr, dtype=np.float64)
+            x = np.where(valid, x, np.nan) if not valid.all() else x
         if np.nanmax(x) == np.nanmin(x):
             continue
         tests, copy_p = pair_tests(block_means(x), stationary=stationary)

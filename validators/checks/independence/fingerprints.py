@@ -62,12 +62,21 @@ _M2 = np.uint64(0x94D049BB133111EB)
 _S30, _S27, _S31 = np.uint64(30), np.uint64(27), np.uint64(31)
 
 
-def mix64(x: np.ndarray) -> np.ndarray:
-    """The splitmix64 finaliser, element-wise on uint64 (wrapping arithmetic)."""
-    x = np.asarray(x, dtype=np.uint64)
-    x = (x ^ (x >> _S30)) * _M1
-    x = (x ^ (x >> _S27)) * _M2
-    return x ^ (x >> _S31)
+def mix64(x: np.ndarray, *, inplace: bool = False) -> np.ndarray:
+    """The splitmix64 finaliser, element-wise on uint64 (wrapping arithmetic).
+
+    ``inplace=True`` overwrites ``x`` (a uint64 array) and needs one temporary of its size,
+    not five: the independence check mixes arrays of every (replica, snapshot)."""
+    x = np.asarray(x, dtype=np.uint64) if inplace else np.array(x, dtype=np.uint64)
+    t = x >> _S30
+    x ^= t
+    x *= _M1
+    np.right_shift(x, _S27, out=t)
+    x ^= t
+    x *= _M2
+    np.right_shift(x, _S31, out=t)
+    x ^= t
+    return x
 
 
 def _keys(n: int, salt: int) -> np.ndarray:
@@ -89,7 +98,9 @@ def marker_offsets(sites: tuple[int, ...], markers: int) -> np.ndarray:
 @dataclass(frozen=True)
 class FingerprintStats:
     """Arrays ``(replica, snapshot)``; ``valid`` is False where the chunk was unreadable.
-    ``full`` and ``full_anchored`` hold 0 where ``sampled`` (per snapshot) is False.
+    ``full`` and ``full_anchored`` are ``(replica, sampled snapshot)``: snapshot t is
+    column ``slot[t]`` where ``sampled[t]`` (``slot`` is -1 elsewhere), so that the hashes
+    of a long run cost a sixty-fourth of a (replica, snapshot) array, not two.
     ``anchor`` is the flat (C-order) index of the first largest mass."""
 
     sparse: np.ndarray
@@ -100,6 +111,7 @@ class FingerprintStats:
     sampled: np.ndarray
     valid: np.ndarray
     sites: tuple[int, ...]
+    slot: np.ndarray
 
 
 class FingerprintStatistic(Statistic):
@@ -132,11 +144,13 @@ class FingerprintStatistic(Statistic):
         )
         self.fraction = count / n_snap if n_snap else 1.0
         self.sampled = hashed_subset(np.arange(n_snap), self.fraction, salt=0xC0DE)
-        shape2 = (n_rep, n_snap)
-        self._out = {
-            k: np.zeros(shape2, np.uint64) for k in ("sparse", "anchored", "full", "full_anchored")
-        }
-        self._anchor = np.full(shape2, -1, np.int64)
+        self.slot = np.full(n_snap, -1, np.int64)
+        self.slot[self.sampled] = np.arange(int(np.count_nonzero(self.sampled)))
+        shape2, picked = (n_rep, n_snap), (n_rep, int(np.count_nonzero(self.sampled)))
+        self._out = {k: np.zeros(shape2, np.uint64) for k in ("sparse", "anchored")}
+        self._out.update({k: np.zeros(picked, np.uint64) for k in ("full", "full_anchored")})
+        # a flat site index fits 32 bits on any lattice below 2^31 sites
+        self._anchor = np.full(shape2, -1, np.int32 if volume < 2**31 else np.int64)
         self._valid = np.zeros(shape2, bool)
         self.moments = SnapshotStatistic(run)  # gives the anchors; replaced by a peer's
         self.backend = backend_for(run)
@@ -179,8 +193,10 @@ class FingerprintStatistic(Statistic):
         sparse, anchored, full, full_anchored, anchor = partial
         self._out["sparse"][sl] = sparse
         self._out["anchored"][sl] = anchored
-        self._out["full"][sl] = full
-        self._out["full_anchored"][sl] = full_anchored
+        pick = self.sampled[ref.start : ref.stop]
+        cols = (ref.replica, self.slot[ref.start : ref.stop][pick])
+        self._out["full"][cols] = full[pick]
+        self._out["full_anchored"][cols] = full_anchored[pick]
         self._anchor[sl] = anchor
         self._valid[sl] = True
 
@@ -195,6 +211,7 @@ class FingerprintStatistic(Statistic):
             self.sampled,
             self._valid,
             self.sites,
+            self.slot,
         )
 
 

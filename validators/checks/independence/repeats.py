@@ -90,8 +90,10 @@ def snapshot_keys(fp: FingerprintStats, snap: Any, kind: str) -> np.ndarray:
     key = (fp.sparse if kind == "exact" else fp.anchored).copy()
     if snap is not None:
         for arr in (snap.total, snap.maximum, snap.minimum, snap.occupied):
-            key = mix64(key ^ np.asarray(arr, dtype=np.int64).view(np.uint64))
-        key = mix64(key ^ np.ascontiguousarray(snap.sum_sq, dtype=np.float64).view(np.uint64))
+            key ^= np.asarray(arr, dtype=np.int64).view(np.uint64)
+            mix64(key, inplace=True)
+        key ^= np.ascontiguousarray(snap.sum_sq, dtype=np.float64).view(np.uint64)
+        mix64(key, inplace=True)
     return key
 
 
@@ -105,13 +107,12 @@ def window_keys(keys: np.ndarray, valid: np.ndarray, width: int) -> tuple[np.nda
     if n < width:
         return out, ok
     span = n - width + 1
-    acc = np.zeros((keys.shape[0], span), np.uint64)
-    good = np.ones((keys.shape[0], span), bool)
+    acc, good = out[:, :span], ok[:, :span]  # views: mixed in place
+    good[...] = True
     for d in range(width):
-        acc = mix64(acc ^ keys[:, d : d + span])
+        acc ^= keys[:, d : d + span]
+        mix64(acc, inplace=True)
         good &= valid[:, d : d + span]
-    out[:, :span] = acc
-    ok[:, :span] = good
     return out, ok
 
 
@@ -155,18 +156,37 @@ class Relation:
         }
 
 
-def _segments(
-    keys: np.ndarray, valid: np.ndarray
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Replica, start, length and key of the runs of equal consecutive valid keys, in
-    replica then time order (one array each)."""
+def _segments(keys: np.ndarray, valid: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Flat (replica-major) index of the first snapshot, length and key of the runs of
+    equal consecutive valid keys, in replica then time order (one array each)."""
     same_prev = np.zeros(keys.shape, bool)
     same_prev[:, 1:] = valid[:, :-1] & valid[:, 1:] & (keys[:, 1:] == keys[:, :-1])
     same_next = np.zeros(keys.shape, bool)
     same_next[:, :-1] = same_prev[:, 1:]
-    replica, start = np.nonzero(valid & ~same_prev)
-    _, end = np.nonzero(valid & ~same_next)
-    return replica, start, end - start + 1, keys[replica, start]
+    np.logical_not(same_prev, out=same_prev)
+    np.logical_not(same_next, out=same_next)
+    first = np.flatnonzero(same_prev & valid)
+    del same_prev
+    length = np.flatnonzero(same_next & valid)
+    del same_next
+    length -= first
+    length += 1
+    return first, length, keys.reshape(-1)[first]
+
+
+def _shared(key: np.ndarray) -> np.ndarray:
+    """Indices of the entries of ``key`` whose value another entry shares, ordered by key
+    and, within a key, by index (the order of a stable sort). Only these can match, and
+    on a long run they are few: the (replica, snapshot) arrays are freed before the
+    matches are enumerated."""
+    order = np.argsort(key, kind="stable")
+    ordered = key[order]
+    same = ordered[1:] == ordered[:-1]
+    del ordered
+    keep = np.zeros(len(order), bool)
+    keep[1:] |= same
+    keep[:-1] |= same
+    return order[keep]
 
 
 def _roll_of(fp: FingerprintStats, r: int, t: int, q: int, u: int) -> tuple[int, ...]:
@@ -206,16 +226,18 @@ def _collect(
 ) -> int:
     """Add the matches proposed by equal ``keys`` (of windows of ``width`` snapshots) to
     ``relations``; return the number of recurring groups left out."""
-    replica, start, length, key = _segments(keys, valid)
+    flat, length, key = _segments(keys, valid)
     if not len(key):
         return 0
-    order = np.argsort(key, kind="stable")
-    cuts = np.flatnonzero(np.diff(key[order])) + 1
+    sel = _shared(key)
+    flat, length, key = flat[sel], length[sel], key[sel]
+    replica, start = np.divmod(flat, keys.shape[1])
+    cuts = np.flatnonzero(np.diff(key)) + 1
     first = np.concatenate([[0], cuts])
-    last = np.concatenate([cuts, [len(order)]])
+    last = np.concatenate([cuts, [len(key)]])
     recurring = 0
     for lo, hi in zip(first[last - first >= 2], last[last - first >= 2], strict=True):
-        g = order[lo:hi]  # segments sharing one key: only these can match
+        g = range(lo, hi)  # segments sharing one key: only these can match
         members = [(int(replica[i]), int(start[i]), int(length[i]), int(key[i])) for i in g]
         per = np.bincount([m[0] for m in members])
         if np.count_nonzero(per) < 2:
@@ -247,7 +269,8 @@ def verify(rel: Relation, fp: FingerprintStats) -> None:
     full = fp.full if rel.kind == "exact" else fp.full_anchored
     for t, _ in rel.matches:
         u = t + rel.shift
-        if fp.sampled[t] and fp.sampled[u] and full[rel.later, t] == full[rel.earlier, u]:
+        at, au = fp.slot[t], fp.slot[u]
+        if at >= 0 and au >= 0 and full[rel.later, at] == full[rel.earlier, au]:
             rel.verified.append(t)
 
 
@@ -265,10 +288,16 @@ def collision_bounds(hist: Any, snap: Any, volume: int) -> np.ndarray:
     block = np.searchsorted(hist.edges, np.arange(n_snap), side="right") - 1
     block = np.clip(block, 0, len(c) - 1)
     log_site = volume * np.log(c[block])  # (snapshot,)
-    mean = snap.total / volume
-    var = np.clip(snap.sum_sq / volume - mean**2, 0.0, None)
-    canon = np.log(np.maximum(1.0, 2.0 * math.pi * volume * var))
-    return np.minimum(0.0, log_site[None, :] + canon)
+    # in place: one (replica, snapshot) array at a time
+    var = snap.total / volume
+    np.square(var, out=var)
+    np.subtract(snap.sum_sq / volume, var, out=var)
+    np.clip(var, 0.0, None, out=var)
+    var *= 2.0 * math.pi * volume
+    np.maximum(var, 1.0, out=var)
+    canon = np.log(var, out=var)
+    canon += log_site[None, :]
+    return np.minimum(canon, 0.0, out=canon)
 
 
 def decorrelation_gap(snap: Any) -> int:
