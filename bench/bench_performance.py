@@ -12,6 +12,8 @@ peak resident set is the ``ru_maxrss`` that ``os.wait4`` reports for that child 
   zarr-python and decoding every chunk-aligned slab of the mass array from a pool of as
   many threads as the audit uses;
 * ``check``: ``massarc check RUN --as json`` with every default check;
+* ``conservation``: ``massarc check RUN --only conservation``: the least audit that still
+  reads and reduces every value (the floor any audit of the whole run pays);
 * ``summarize``: ``massarc summarize RUN --force`` with every default;
 * ``encode`` (the baseline of ``convert``): ``python -c`` importing zarr-python and writing
   the run's masses from a ``.npy`` file into an array with massarc's codecs and chunks;
@@ -48,6 +50,10 @@ DOC = HERE.parent / "docs" / "performance.md"
 MASSARC = str(Path(sys.executable).with_name("massarc"))
 SITES, B = bench_check.SITES, bench_check.B
 DENSITY = {"condensed": 0.6, "fluid": 0.3}
+#: The commands of the record, in the order of its tables.
+KINDS = ("decode", "conservation", "check", "summarize", "encode", "convert")
+#: The folders of massarc's code (compiled to bytecode before timing, as an install does).
+CODE = ("schema", "archive", "validators", "summaries", "simulate", "massarc")
 
 DECODE = """
 import sys
@@ -149,6 +155,10 @@ def commands(path: Path, workers: int, scratch: Path) -> dict[str, list[str]]:
     return {
         "decode": [py, "-c", DECODE, str(path), str(workers)],
         "check": [MASSARC, "check", str(path), "--as", "json", "-q", "--workers", str(workers)],
+        "conservation": [
+            MASSARC, "check", str(path), "--only", "conservation", "--as", "json", "-q",
+            "--workers", str(workers),
+        ],
         "summarize": [
             MASSARC, "summarize", str(path), "--force", "-q", "--as", "json",
             "--workers", str(workers),
@@ -177,6 +187,49 @@ def measure(cmds: dict[str, list[str]], repeat: int, scratch: Path) -> dict:
         }
         for kind, v in runs.items()
     }
+
+
+#: Where the time of ``check`` goes, measured in one fresh process: imports, a pass that
+#: only decodes, the pass with every statistic of the default audit, the analyses.
+PHASES = """
+import json, sys, time
+t = time.perf_counter()
+from massarc.archive import open_run
+from massarc.archive.scan import Statistic, scan
+from massarc.validators.engine.registry import available_checks
+from massarc.validators.engine.runner import _RunAudit
+out = {"imports": time.perf_counter() - t}
+run = open_run(sys.argv[1])
+workers = int(sys.argv[2])
+
+class Decode(Statistic):
+    name = "decode-only"
+    def chunk(self, chunk): return None
+    def merge(self, ref, partial): pass
+    def finish(self, faults): return None
+
+t = time.perf_counter(); scan(run, {"d": Decode(run)}, workers=workers)
+out["decode pass"] = time.perf_counter() - t
+classes = list(available_checks().values())
+audit = _RunAudit(run, classes, {c.id: c.option_values(None) for c in classes})
+runnable = audit.plan()
+t = time.perf_counter(); res = scan(run, audit.statistics, workers=workers)
+out["pass with every statistic"] = time.perf_counter() - t
+t = time.perf_counter()
+for cls in runnable:
+    audit.check(cls, res)
+out["analyses (every check)"] = time.perf_counter() - t
+print(json.dumps(out))
+"""
+
+
+def phases(path: Path, workers: int) -> dict[str, float]:
+    """Seconds of each phase of ``check`` (see :data:`PHASES`), in a fresh process."""
+    out = subprocess.run(
+        [sys.executable, "-c", PHASES, str(path), str(workers)],
+        capture_output=True, text=True, check=True,
+    )  # fmt: skip
+    return json.loads(out.stdout.strip().splitlines()[-1])
 
 
 def startup(repeat: int) -> dict[str, float]:
@@ -253,12 +306,13 @@ def main() -> None:
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--workers", type=int, default=None)
     ap.add_argument("--no-doc", action="store_true", help="write only bench/out/performance.json")
-    ap.add_argument("--no-large", action="store_true", help="skip the larger (memory) run")
+    ap.add_argument("--no-large", action="store_true", help="skip the other (memory) sizes")
     ap.add_argument("--out", default=str(OUT / "performance.json"), help="the JSON written")
     args = ap.parse_args()
     started = time.perf_counter()
     workers = args.workers or len(os.sched_getaffinity(0))
     small, large = (1 / 16, 1 / 4) if args.quick else (1.0, 4.0)
+    smaller = small / 4  # the third size of the memory table
     load_before = os.getloadavg()
     scratch = OUT / "performance-scratch"
     scratch.mkdir(parents=True, exist_ok=True)
@@ -267,14 +321,20 @@ def main() -> None:
         "machine": machine(),
         "workers": workers,
         "repeat": args.repeat,
-        "sizes_gib": [small, large],
+        "sizes_gib": [small, smaller, large],
         "startup": startup(max(args.repeat, 3)),
         "imports": imports_seconds(),
         "runs": [],
     }
+    # an install compiles the bytecode; an editable checkout under PYTHONDONTWRITEBYTECODE
+    # would compile every module on every start and bill it to start-up
+    root = HERE.parent
+    subprocess.run(
+        [sys.executable, "-m", "compileall", "-q", *(str(root / d) for d in CODE)], check=True
+    )
     plan = [("condensed", small), ("fluid", small)]
     if not args.no_large:
-        plan.append(("condensed", large))
+        plan += [("condensed", smaller), ("condensed", large)]
     for kind, gib in plan:
         path = build(kind, gib)
         cmds = commands(path, workers, scratch)
@@ -286,9 +346,10 @@ def main() -> None:
         m = measure(cmds, repeat, scratch)
         stored = sum(f.stat().st_size for f in (path / "mass").rglob("*") if f.is_file())
         nbytes = int(np.load(path.with_suffix(".npy"), mmap_mode="r").nbytes)
-        result["runs"].append(
-            {"kind": kind, "gib": gib, "bytes": nbytes, "stored_bytes": stored, **m}
-        )
+        entry = {"kind": kind, "gib": gib, "bytes": nbytes, "stored_bytes": stored, **m}
+        if gib == small:
+            entry["phases"] = phases(path, workers)
+        result["runs"].append(entry)
         print(
             f"{kind} {gib:g} GiB: " + ", ".join(f"{k} {v['seconds']:.2f} s" for k, v in m.items())
         )
@@ -319,7 +380,7 @@ def render(res: dict, quick: bool) -> str:
         "",
         "Written by `make bench` (`bench/bench_performance.py`; the method is in its docstring).",
         "Every time is a fresh process timed from outside, start-up included, the fastest of "
-        f"{res['repeat']} on the {res['sizes_gib'][0]:g} GiB runs (1 on the larger run); every "
+        f"{res['repeat']} on the {res['sizes_gib'][0]:g} GiB runs (1 on the other sizes); every "
         "ratio divides by a baseline measured in the same run.",
         "",
         f"* date: {res['date']}; massarc commit {m['commit']}"
@@ -356,8 +417,8 @@ def render(res: dict, quick: bool) -> str:
     for run in res["runs"]:
         comp = run["bytes"] / max(run["stored_bytes"], 1)
         first = True
-        for kind in ("decode", "check", "summarize", "encode", "convert"):
-            base = run["decode" if kind in ("decode", "check", "summarize") else "encode"]
+        for kind in KINDS:
+            base = run["encode" if kind in ("encode", "convert") else "decode"]
             r = run[kind]
             head = f"| {run['kind']} | {run['gib']:g} GiB | {comp:.1f}x" if first else "| | |"
             first = False
@@ -365,27 +426,60 @@ def render(res: dict, quick: bool) -> str:
                 f"{head} | {kind} | {r['seconds']:.2f} | {r['seconds'] / base['seconds']:.2f} "
                 f"| {run['bytes'] / r['seconds'] / 1e6:.0f} | {r['peak_rss'] / 1e6:.0f} |"
             )
-    small = [r for r in res["runs"] if r["kind"] == "condensed"]
-    if len(small) == 2:
-        a, b = small
+    timed_phases = [r for r in res["runs"] if "phases" in r]
+    if timed_phases:
+        names = list(timed_phases[0]["phases"])
+        lines += [
+            "",
+            "## Where the time of `check` goes",
+            "",
+            "Seconds of each phase in one fresh process (`PHASES` in the bench), beside the",
+            "wall time of the whole command above:",
+            "",
+            "| run | " + " | ".join(names) + " |",
+            "| --- |" + " ---: |" * len(names),
+        ]
+        for r in timed_phases:
+            cells = " | ".join(f"{r['phases'][n]:.2f}" for n in names)
+            lines.append(f"| {r['kind']} {r['gib']:g} GiB | {cells} |")
+    sizes = sorted((r for r in res["runs"] if r["kind"] == "condensed"), key=lambda r: r["gib"])
+    if len(sizes) >= 3:
+        head = " | ".join(f"{r['gib']:g} GiB (MB)" for r in sizes)
         lines += [
             "",
             "## Peak memory against run size (condensed run)",
             "",
-            f"| command | {a['gib']:g} GiB (MB) | {b['gib']:g} GiB (MB) | growth |",
-            "| --- | ---: | ---: | ---: |",
+            "The sizes differ in their number of snapshots (2000 sites, 4 replicas each); growth",
+            f"is from {sizes[1]['gib']:g} to {sizes[-1]['gib']:g} GiB; per snapshot: the extra",
+            "peak per added (replica, snapshot) between those two sizes.",
+            "",
+            f"| command | {head} | growth | bytes per (replica, snapshot) |",
+            "| --- |" + " ---: |" * (len(sizes) + 2),
         ]
-        for kind in ("decode", "check", "summarize", "encode", "convert"):
+        a, b = sizes[1], sizes[-1]
+        added = (b["bytes"] - a["bytes"]) / (2 * SITES)  # uint16 masses of SITES sites
+        for kind in KINDS:
+            peaks = " | ".join(f"{r[kind]['peak_rss'] / 1e6:.0f}" for r in sizes)
             pa, pb = a[kind]["peak_rss"], b[kind]["peak_rss"]
             lines.append(
-                f"| {kind} | {pa / 1e6:.0f} | {pb / 1e6:.0f} | {100 * (pb / pa - 1):+.0f} % |"
+                f"| {kind} | {peaks} | {100 * (pb / pa - 1):+.0f} % | {(pb - pa) / added:.0f} |"
             )
     lines += [
         "",
-        "Reading it: `encode` maps its `.npy` input into memory, so its peak resident set counts",
-        "the input's pages; `convert` reads the same file in slabs. What grows with the run in",
-        "`check` and `summarize` is the per-(replica, snapshot) results the statistics keep",
-        "(totals, extrema, fingerprints, ...), not chunk data: the pass holds a few chunks.",
+        "Reading it. `conservation` is the least audit of a whole run: start-up, the pass",
+        "decoding every chunk, one fused reduction of every value. Its ratio is the floor of",
+        "any audit's ratio with this design: massarc's start-up (the archive layer, the",
+        "metadata models, numba's cached kernels) and the reduction come on top of the",
+        "decode. `check` adds the other statistics of the pass and the analyses after it",
+        "(the phases table).",
+        "",
+        "Memory: a base (imports, compiled kernels, a few chunks in flight) plus the results",
+        "the pass keeps per (replica, snapshot) (totals, extrema, sums of squares, occupied",
+        "sites, positions, fingerprints, profile moments) and the analyses' working copies of",
+        "them. The sizes above differ in their number of snapshots, so their peaks differ by",
+        "about the last column times the added (replica, snapshot)s; a run that grows in",
+        "sites instead keeps the same results per snapshot. `encode` maps its `.npy` input",
+        "into memory, so its peak counts the input's pages; `convert` reads it in slabs.",
         "",
         "Re-measure: `make bench` (this file; about the duration above, plus about 10 minutes",
         "to build the runs the first time), or `make bench BENCH=--quick` for a look at",
