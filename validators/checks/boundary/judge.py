@@ -73,7 +73,8 @@ Declared reflecting or open: the wall test
     Decided when a ring would be caught: (rho_ring - rho0) / se must reach the critical t
     plus ``margin``; or, for walls, the ring test rejects the ring (the data are not a ring).
     rho_ring is what a ring of these data would show. Pearson's correlation is 1/2, but
-    that of normal scores is lower when a few huge moves carry the changes (measured:
+    the mean over blocks of the normal-score correlation is lower: short blocks bias a
+    correlation towards 0, and so do a few huge moves carrying the changes (measured:
     symmetric condensed ZRP rings, L = 200, a snapshot every 1000 hop times, 0.33 to 0.5;
     taking 1/2 passed 2 of 20 such rings declared as walls). The arcs' changes are observed
     whatever the boundary, and on a ring the pair turned by a third, (-A2, A1), and by two
