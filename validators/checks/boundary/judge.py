@@ -81,6 +81,8 @@ Declared reflecting or open: the wall test
     thirds, (-A3, A2), have the law of the pair itself: rho_ring is the mean normal-score
     correlation of the three, at most 1/2. Behind walls the turned pairs share a bond and
     correlate (about 1/sqrt(2) for independent bond transfers), so rho_ring stays near 1/2.
+    On an open axis the transfers carry the recorded inflow, the turns do not apply, and
+    rho_ring is 1/2.
     With a declared total drift (right probability 1 or 0) every transfer has the drift's
     sign: a transfer against it is an exact contradiction (p = 0).
 
@@ -398,6 +400,8 @@ def wall_test(
     p = float(student_sf(t, m - 1))
     cyclic = [x for x in turned if math.isfinite(x)]
     ring_like = min(RING_CORRELATION, float(np.mean(cyclic))) if cyclic else nan
+    if data.constant != "zero":  # open ends: x holds the inflow, not the arcs' changes alone
+        ring_like = RING_CORRELATION
     return WallTest(bonds, spacing, scale, rho0, mean, se, t, m - 1, p, m, ring_like)
 
 
