@@ -34,6 +34,10 @@ Rates carry Clopper-Pearson 95 % intervals (scipy.stats.beta)::
     nice -n 10 .venv/bin/python bench/calibrate_steady_state.py                 # ~80 minutes
     nice -n 10 .venv/bin/python bench/calibrate_steady_state.py --part honest   # ~60 minutes
     nice -n 10 .venv/bin/python bench/calibrate_steady_state.py --runs 3        # ~5 minutes
+    nice -n 10 .venv/bin/python bench/calibrate_steady_state.py --rerun 2124009  # one run
+
+The honest runs that did not pass are listed with their seeds under ``not_passed`` in the
+JSON; ``--rerun`` simulates such runs alone and prints their ESS per observable.
 
 Results go to bench/out/steady_state.json and, as tables, to docs/steady_state.md (the
 part between the markers).
@@ -107,12 +111,15 @@ class Cell:
         self.status: Counter[str] = Counter()
         self.kinds: Counter[str] = Counter()
         self.example = ""
+        self.warned: list[dict[str, Any]] = []
 
-    def add(self, status: str, message: str) -> None:
+    def add(self, status: str, message: str, seed: int | None = None) -> None:
         self.status[status] += 1
         self.kinds[kind_of(status, message)] += 1
         if status == "warn" and not self.example:
             self.example = message
+        if status != "pass" and seed is not None:  # which runs, to re-run them alone
+            self.warned.append({"seed": seed, "status": status, "message": message})
 
     def row(self) -> dict[str, Any]:
         n = sum(self.status.values())
@@ -123,6 +130,7 @@ class Cell:
             out[f"{s}_ci95"] = interval(k, n) if n else (0.0, 1.0)
         out["kinds"] = dict(self.kinds)
         out["example_warning"] = self.example
+        out["not_passed"] = self.warned
         return out
 
 
@@ -226,7 +234,7 @@ def honest(runs: int, seed: int) -> list[dict[str, Any]]:
                 initial=initial, burn_in=burn * tau,
             )  # fmt: skip
             for sp, cell in by_spacing.items():
-                cell.add(*judge(meta, red.every(sp // 10)))
+                cell.add(*judge(meta, red.every(sp // 10)), seed=seed + i)
             every100 = red.every(10)
             for n_tau, cell in by_length.items():
                 if n_tau == 20.0:
@@ -267,6 +275,28 @@ def synthetic(runs: int, seed: int) -> list[dict[str, Any]]:
                 rows.append(cell.row())
                 print(f"{cell.name:60s} {dict(cell.status)}", flush=True)
     return rows
+
+
+def rerun(seeds: list[int]) -> None:
+    """Honest CMAM runs of 20 L^z again, one per seed (the seeds a study recorded under
+    ``not_passed``), judged at a snapshot every 100 hop times: status and, per observable,
+    bulk and tail ESS and tau_int (snapshots), to see which estimate fell short."""
+    name, model, length, initial, burn, _ = HONEST[0]
+    meta = meta_of(model, length)
+    tau = relaxation_time(meta)
+    assert tau is not None
+    h = hop_time(meta)
+    times = np.arange(0.0, 20.0 * tau + 0.5 * h, 10.0 * h)
+    for seed in seeds:
+        red = simulate_reduced(
+            meta, times, replicas=REPLICAS, seed=seed, mass=round(RHO * length),
+            initial=initial, burn_in=burn * tau,
+        )  # fmt: skip
+        res = CHECK.run(context(meta, red.every(10)))
+        obs = res.values.get("observables", {})
+        ess = {k: (round(o["ess_bulk"]), round(o["ess_tail"]), round(o["tau_int"], 1))
+               for k, o in obs.items() if not o["constant"]}  # fmt: skip
+        print(f"{name} seed {seed}: {res.status}; (bulk, tail, tau_int) {ess}", flush=True)
 
 
 def _ci(lo_hi: tuple[float, float]) -> str:
@@ -343,7 +373,13 @@ def main() -> None:
     )
     ap.add_argument("--seed", type=int, default=2024)
     ap.add_argument("--no-doc", action="store_true", help="do not rewrite docs/steady_state.md")
+    ap.add_argument(
+        "--rerun", type=int, nargs="+", help="only re-run these honest CMAM seeds, print ESS"
+    )
     args = ap.parse_args()
+    if args.rerun:
+        rerun(args.rerun)
+        return
     t0 = time.perf_counter()
     result: dict[str, Any] = {"seed": args.seed, "replicas": REPLICAS, "seconds": 0.0}
     if args.part != "all":

@@ -154,3 +154,54 @@ def test_a_piled_axis_behind_walls_is_judged_by_the_ring_test():
     assert verdict.ring.p_value < 1e-4
     verdict, _ = judged(piled("ring", 5), "reflecting")
     assert verdict.outcome == "undecided", verdict
+
+
+def jumpy(kind: str, seed: int) -> np.ndarray:
+    """A ring of small Skellam(0.3, 0.3) bond transfers plus a condensate of 500 units that
+    relocates to a uniformly drawn site at every snapshot: a few huge moves carry the arcs'
+    changes. Only rings (``kind``)."""
+    assert kind == "ring"
+    rng = np.random.default_rng(seed)
+    j = rng.poisson(0.3, (R, T - 1, L)) - rng.poisson(0.3, (R, T - 1, L))
+    m = np.full((R, T, L), 200, np.int64)
+    m[:, 1:] += np.cumsum(np.roll(j, 1, axis=2) - j, axis=1)
+    at = rng.integers(L, size=(R, T))
+    np.put_along_axis(m, at[:, :, None], np.take_along_axis(m, at[:, :, None], 2) + 500, 2)
+    assert m.min() >= 0
+    return m
+
+
+def _van_der_waerden(a: np.ndarray, b: np.ndarray) -> float:
+    """Pearson correlation of normal scores Phi^-1(rank / (n + 1)), from scipy.stats
+    (rankdata, norm.ppf, pearsonr): the correlation the wall test averages."""
+    n = len(a)
+    za = stats.norm.ppf(stats.rankdata(a) / (n + 1))
+    zb = stats.norm.ppf(stats.rankdata(b) / (n + 1))
+    return float(stats.pearsonr(za, zb).statistic)
+
+
+@pytest.mark.parametrize("make", [built, jumpy])
+def test_a_ring_declared_walls_is_weighed_against_its_own_thirds_correlation(make):
+    # Outside truth: on a ring the changes of the three arcs are translates of one another
+    # (derived), so the pair (-A1, A3) and its turns (-A2, A1), (-A3, A2) share one law:
+    # the turned estimate must match the pair's own normal-score correlation, computed
+    # here block by block with scipy.stats. That is below Pearson's 1/2 even for nearly
+    # Gaussian transfers, since blocks of 15 changes bias a correlation towards 0 (from
+    # memory: E r is about rho (1 - (1 - rho^2) / (2 n)) for normal data), and with a
+    # condensate relocating between arcs.
+    own, turned = [], []
+    for seed in range(6):
+        data = reduced(make("ring", 300 + seed), "reflecting")
+        a, b = data.plan.wall
+        y = np.diff(data.x[:, :, [a, b]].astype(float), axis=1)
+        edges = np.linspace(0, y.shape[1], 17).astype(int)  # the wall test's 16 blocks
+        own.extend(
+            _van_der_waerden(y[r, lo:hi, 0], y[r, lo:hi, 1])
+            for r in range(R)
+            for lo, hi in itertools.pairwise(edges)
+        )
+        wall = wall_test(data, 1.0, reach=0.0)  # the pair tested whatever the spreading
+        assert wall is not None
+        turned.append(wall.ring_like)
+    assert np.mean(turned) == pytest.approx(min(0.5, float(np.mean(own))), abs=0.03)
+    assert np.mean(own) < 0.48 and max(turned) < 0.48  # 1/2 would overstate a ring

@@ -21,11 +21,12 @@ Three findings fail a run, in this order:
   are still in, or one decorrelation time out of, their shared start;
 * cross-replica correlation beyond chance: H0 as above. Statistic: per pair of replicas
   and observable (largest mass, sum of squares, occupied sites, coarse profile), the mean
-  of d_r.d_q + S/(R-1) over snapshots (deviations from the replica mean; zero mean under
-  H0 even for a relaxing run). p-value: one-sided tail (Student's t, ESS - 1 degrees of
-  freedom) of its autocorrelation-corrected score, Bonferroni over pairs and observables,
-  counted only when the effective sample size makes the tail trustworthy. fail when p <
-  ``alpha``.
+  of d_r.d_q + S/(R-1) over snapshots (d_r: normal scores of the replica's own increments,
+  standardised per replica, less their mean over replicas; zero mean under H0 even for a
+  relaxing run, and for replicas whose increments are tied at zero unequally often).
+  p-value: one-sided tail (Student's t, ESS - 1 degrees of freedom) of its
+  autocorrelation-corrected score, Bonferroni over pairs and observables, counted only
+  when the effective sample size makes the tail trustworthy. fail when p < ``alpha``.
 
 ``where`` gives the first replica that repeats an earlier one (or the later replica of
 the most correlated pair), the snapshot of the first verified repeat; the values name the
