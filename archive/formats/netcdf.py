@@ -29,9 +29,10 @@ from ..errors import DataError
 from ..reader import Chunk, Run
 from ._arrays import array_batches
 from ._axes import lattice_axes, times_for
+from ._capped import CappedSource
 from ._export import MASK, MissingMask, guard_mask
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
-from ._native import guard_source, probe_structure
+from ._native import guard_source
 from ._options import guard_options
 from ._signatures import HDF5_MAGIC, NETCDF_CLASSIC_MAGIC
 from .registry import Batch, Events, Format, Progress, Source
@@ -61,7 +62,6 @@ class NetCDFSource(Source):
 
         self.name = str(path)
         self.options = options
-        probe_structure("netcdf", path, self.name)
         try:
             self.ds = xr.open_dataset(
                 path, decode_times=False, mask_and_scale=False, decode_cf=False
@@ -197,7 +197,7 @@ class NetCDFFormat(Format):
 
     def read(self, path: Path | str, **options: str) -> Source:
         guard_options(options, self.read_options, "reading netcdf")
-        return NetCDFSource(Path(path), dict(options))
+        return CappedSource(NetCDFSource, Path(path), dict(options), "NetCDF")
 
     def write(
         self,
