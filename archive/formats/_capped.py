@@ -24,7 +24,7 @@ import socket
 import subprocess
 import sys
 import traceback
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from multiprocessing.connection import Connection
 from pathlib import Path
 from typing import Any
@@ -34,7 +34,7 @@ from massarc.schema import MetadataError, RunMeta
 from ..errors import ArchiveError, DataError
 from .registry import Batch, Events, Source
 
-__all__ = ["CHILD_MEMORY", "STEP_SECONDS", "CappedSource"]
+__all__ = ["CHILD_MEMORY", "STEP_SECONDS", "CappedSource", "capped_call"]
 
 #: Address space of the child: room for Python, NumPy, xarray, the HDF5 library and two
 #: batches of data (``BATCH_BYTES``), not for what a damaged file could make them allocate.
@@ -56,16 +56,13 @@ _LAUNCH = (
 )
 
 
-class CappedSource(Source):
-    """``reader(path, options)`` (a :class:`Source` class importable by its module and
-    name) run in a capped child process; ``library`` names the native library in
-    messages."""
+class _Child:
+    """The child process of a file ``name`` read by ``library``, and the conversation."""
 
-    def __init__(
-        self, reader: type[Source], path: Path, options: dict[str, str], library: str
-    ) -> None:
-        self.name = str(path)
+    def __init__(self, name: str, library: str) -> None:
+        self.name = name
         self.library = library
+        self.state: dict[str, Any] = {}
         ours, theirs = socket.socketpair()
         env = {**os.environ, "MALLOC_ARENA_MAX": "2", "OMP_NUM_THREADS": "1"}
         fd = theirs.fileno()
@@ -82,30 +79,6 @@ class CappedSource(Source):
         finally:
             theirs.close()
         self.conn = Connection(ours.detach())
-        try:
-            self._ask("open", f"{reader.__module__}:{reader.__qualname__}", self.name, options)
-        except BaseException:
-            self.close()
-            raise
-
-    # -- the forwarded methods ----------------------------------------------------------
-
-    def hints(self) -> dict[str, Any]:
-        return self._ask("hints")
-
-    def mapped(self) -> dict[str, Any]:
-        return self._ask("mapped")
-
-    def n_snapshots_for(self, meta: RunMeta) -> int | None:
-        return self._ask("n_snapshots_for", meta)
-
-    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
-        self._send("batches", meta, chunk)
-        while True:
-            kind, value = self._answer()
-            if kind == "end":
-                return
-            yield value
 
     def close(self) -> None:
         self.conn.close()  # the child sees the end of its requests and exits
@@ -115,19 +88,17 @@ class CappedSource(Source):
             self.proc.kill()
             self.proc.wait()
 
-    # -- the conversation -----------------------------------------------------------------
-
-    def _send(self, *request: Any) -> None:
+    def send(self, *request: Any) -> None:
         try:
             self.conn.send(request)
         except OSError:  # the child is gone already
             raise self._death() from None
 
-    def _ask(self, *request: Any) -> Any:
-        self._send(*request)
-        return self._answer()[1]
+    def ask(self, *request: Any) -> Any:
+        self.send(*request)
+        return self.answer()[1]
 
-    def _answer(self) -> tuple[str, Any]:
+    def answer(self) -> tuple[str, Any]:
         """The child's next message; its errors raised here, its death a DataError."""
         try:
             ready = self.conn.poll(STEP_SECONDS)
@@ -141,8 +112,7 @@ class CappedSource(Source):
                 f"{self.name}: damaged file: the {self.library} library did not finish "
                 f"reading it in {STEP_SECONDS:.0f} s"
             )
-        kind, value, state = message
-        self.__dict__.update(state)
+        kind, value, self.state = message
         if kind == "error":
             raise _rebuilt(value)
         if kind == "internal":
@@ -161,7 +131,7 @@ class CappedSource(Source):
                 f"{self.name}: reading it needs more than {CHILD_MEMORY >> 20} MiB, the cap "
                 f"on the {self.library} library (a damaged file, or snapshots too large)"
             )
-        elif code == -signal.SIGXCPU:
+        if code == -signal.SIGXCPU:
             why = f"the {self.library} library spent over {STEP_SECONDS:.0f} s reading it"
         elif code < 0:
             sig = signal.Signals(-code).name if -code in signal.valid_signals() else -code
@@ -169,6 +139,67 @@ class CappedSource(Source):
         else:
             why = f"the reading process ended with status {code}"
         return DataError(f"{self.name}: damaged file: {why}")
+
+
+def _reference(function: Callable[..., Any]) -> str:
+    return f"{function.__module__}:{function.__qualname__}"
+
+
+class CappedSource(Source):
+    """``reader(path, options)`` (a :class:`Source` class importable by its module and
+    name) run in a capped child process; ``library`` names the native library in
+    messages."""
+
+    def __init__(
+        self, reader: type[Source], path: Path, options: dict[str, str], library: str
+    ) -> None:
+        self.name = str(path)
+        self.child = _Child(self.name, library)
+        try:
+            self._ask("open", _reference(reader), (path, options))
+        except BaseException:
+            self.close()
+            raise
+
+    def hints(self) -> dict[str, Any]:
+        return self._ask("hints")
+
+    def mapped(self) -> dict[str, Any]:
+        return self._ask("mapped")
+
+    def n_snapshots_for(self, meta: RunMeta) -> int | None:
+        return self._ask("n_snapshots_for", meta)
+
+    def batches(self, meta: RunMeta, chunk: int) -> Iterator[Batch | Events]:
+        self.child.send("batches", meta, chunk)
+        while True:
+            kind, value = self._answer()
+            if kind == "end":
+                return
+            yield value
+
+    def close(self) -> None:
+        self.child.close()
+
+    def _ask(self, *request: Any) -> Any:
+        self.child.send(*request)
+        return self._answer()[1]
+
+    def _answer(self) -> tuple[str, Any]:
+        try:
+            return self.child.answer()
+        finally:
+            self.__dict__.update(self.child.state)  # total, dtype, ... as the child has them
+
+
+def capped_call(function: Callable[..., Any], path: Path, library: str) -> Any:
+    """``function(path)`` (importable by its module and name) run in a capped child
+    process; a crash, hang or memory exhaustion is a :class:`DataError` naming ``path``."""
+    child = _Child(str(path), library)
+    try:
+        return child.ask("call", _reference(function), (path,))
+    finally:
+        child.close()
 
 
 def _rebuilt(value: tuple[str, Any]) -> Exception:
@@ -194,19 +225,20 @@ def _state(source: Source | None) -> dict[str, Any]:
     return {} if source is None else {k: getattr(source, k) for k in _STATE}
 
 
-def _open(reader: str, path: str, options: dict[str, str]) -> Source:
+def _resolve(reference: str) -> Any:
     import importlib
 
-    module, name = reader.split(":")
-    return getattr(importlib.import_module(module), name)(Path(path), options)
+    module, name = reference.split(":")
+    return getattr(importlib.import_module(module), name)
 
 
 def _step(conn: Connection, source: Source | None, request: tuple[Any, ...]) -> Source | None:
     """Answer one request; return the source (opened by the request ``open``)."""
     what, *args = request
-    if what == "open":
-        source = _open(*args)
-        conn.send(("value", None, _state(source)))
+    if what in ("open", "call"):  # a reader class or a function, and its arguments
+        made = _resolve(args[0])(*args[1])
+        source = made if what == "open" else source
+        conn.send(("value", None if what == "open" else made, _state(source)))
         return source
     assert source is not None
     if what == "batches":
