@@ -24,7 +24,7 @@ import socket
 import subprocess
 import sys
 import traceback
-from collections.abc import Callable, Iterator
+from collections.abc import Iterator
 from multiprocessing.connection import Connection
 from pathlib import Path
 from typing import Any
@@ -34,7 +34,7 @@ from massarc.schema import MetadataError, RunMeta
 from ..errors import ArchiveError, DataError
 from .registry import Batch, Events, Source
 
-__all__ = ["CHILD_MEMORY", "STEP_SECONDS", "CappedSource", "capped_call"]
+__all__ = ["CHILD_MEMORY", "STEP_SECONDS", "CappedSource"]
 
 #: Address space of the child: room for Python, NumPy, xarray, the HDF5 library and two
 #: batches of data (``BATCH_BYTES``), not for what a damaged file could make them allocate.
@@ -141,10 +141,6 @@ class _Child:
         return DataError(f"{self.name}: damaged file: {why}")
 
 
-def _reference(function: Callable[..., Any]) -> str:
-    return f"{function.__module__}:{function.__qualname__}"
-
-
 class CappedSource(Source):
     """``reader(path, options)`` (a :class:`Source` class importable by its module and
     name) run in a capped child process; ``library`` names the native library in
@@ -156,7 +152,7 @@ class CappedSource(Source):
         self.name = str(path)
         self.child = _Child(self.name, library)
         try:
-            self._ask("open", _reference(reader), (path, options))
+            self._ask("open", f"{reader.__module__}:{reader.__qualname__}", (path, options))
         except BaseException:
             self.close()
             raise
@@ -192,16 +188,6 @@ class CappedSource(Source):
             self.__dict__.update(self.child.state)  # total, dtype, ... as the child has them
 
 
-def capped_call(function: Callable[..., Any], path: Path, library: str) -> Any:
-    """``function(path)`` (importable by its module and name) run in a capped child
-    process; a crash, hang or memory exhaustion is a :class:`DataError` naming ``path``."""
-    child = _Child(str(path), library)
-    try:
-        return child.ask("call", _reference(function), (path,))
-    finally:
-        child.close()
-
-
 def _rebuilt(value: tuple[str, Any]) -> Exception:
     kind, args = value
     if kind == "metadata":
@@ -235,10 +221,9 @@ def _resolve(reference: str) -> Any:
 def _step(conn: Connection, source: Source | None, request: tuple[Any, ...]) -> Source | None:
     """Answer one request; return the source (opened by the request ``open``)."""
     what, *args = request
-    if what in ("open", "call"):  # a reader class or a function, and its arguments
-        made = _resolve(args[0])(*args[1])
-        source = made if what == "open" else source
-        conn.send(("value", None if what == "open" else made, _state(source)))
+    if what == "open":  # the reader class, and its arguments
+        source = _resolve(args[0])(*args[1])
+        conn.send(("value", None, _state(source)))
         return source
     assert source is not None
     if what == "batches":

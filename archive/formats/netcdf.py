@@ -29,12 +29,12 @@ from ..errors import DataError
 from ..reader import Chunk, Run
 from ._arrays import array_batches
 from ._axes import lattice_axes, times_for
-from ._capped import CappedSource, capped_call
+from ._capped import CappedSource
 from ._export import MASK, MissingMask, guard_mask
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
 from ._native import guard_source
 from ._options import guard_options
-from ._signatures import HDF5_MAGIC, NETCDF4_MARK, NETCDF_CLASSIC_MAGIC
+from ._signatures import HDF5_MAGIC, NETCDF4_MARKS, NETCDF_CLASSIC_MAGIC
 from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["NetCDFFormat"]
@@ -188,9 +188,9 @@ class NetCDFFormat(Format):
             return True
         if not head.startswith(HDF5_MAGIC):
             return False
-        if NETCDF4_MARK in head:  # the root attribute of the netCDF library, near the start
-            return True
-        return bool(capped_call(_netcdf_marked, path, "HDF5"))
+        # the marks of NetCDF-4 in the first bytes, never the HDF5 library in this process
+        # (a damaged file can crash it; see _capped); else the name says what the user means
+        return any(mark in head for mark in NETCDF4_MARKS) or path.name.endswith(self.suffixes)
 
     def read(self, path: Path | str, **options: str) -> Source:
         guard_options(options, self.read_options, "reading netcdf")
@@ -239,16 +239,6 @@ class NetCDFFormat(Format):
                 run.n_replicas * run.n_snapshots, run.n_replicas * run.n_snapshots, "snapshots"
             )
         return _notes(run, lost)
-
-
-def _netcdf_marked(path: Path) -> bool:
-    """The HDF5 file ``path`` carries the marks of NetCDF-4 (run in a capped child)."""
-    import h5py
-
-    with h5py.File(path, "r") as f:
-        return "_NCProperties" in f.attrs or any(
-            "DIMENSION_LIST" in obj.attrs for obj in f.values() if hasattr(obj, "attrs")
-        )
 
 
 def _checked_blocks(run: Run, allow_missing: bool) -> tuple[Any, Any, list[Chunk]]:
