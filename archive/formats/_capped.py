@@ -48,10 +48,13 @@ _OUT_OF_MEMORY = 3
 #: What the child tells this process about its source after every step.
 _STATE = ("name", "unit", "total", "dtype", "n_snapshots", "notes")
 
-#: Sets the cap before anything is imported, then serves the requests on the socket.
+#: Sets the cap (or keeps a lower one massarc runs under) before anything is imported,
+#: then serves the requests on the socket.
 _LAUNCH = (
     "import resource, sys; "
-    "resource.setrlimit(resource.RLIMIT_AS, (int(sys.argv[2]), int(sys.argv[2]))); "
+    "cap, hard = int(sys.argv[2]), resource.getrlimit(resource.RLIMIT_AS)[1]; "
+    "cap = cap if hard == resource.RLIM_INFINITY else min(cap, hard); "
+    "resource.setrlimit(resource.RLIMIT_AS, (cap, cap)); "
     "from massarc.archive.formats._capped import serve; serve(int(sys.argv[1]))"
 )
 
