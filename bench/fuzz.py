@@ -3,6 +3,7 @@
     nice -n 10 .venv/bin/python bench/fuzz.py                  # 100,000 cases, resumable
     nice -n 10 .venv/bin/python bench/fuzz.py --cases 200000   # go on to 200,000
     .venv/bin/python bench/fuzz.py --summary                   # print what was found
+    nice -n 10 .venv/bin/python bench/fuzz.py --targets format-hdf5,format-netcdf --rounds 3
 
 The campaign runs in rounds: one round gives every target ``--per-round`` cases (the HDF5
 and NetCDF readers, whose every case starts a child process, 1/20 of them) drawn by
@@ -13,7 +14,9 @@ kills a worker that makes no progress for ``--stall`` seconds and records a hang
 case. A worker killed by the cap, or dying, is a failure too. After every round the state
 (cases per target, distinct failures with a count, a message and a reproducer file) is
 written atomically to ``bench/out/fuzz.json`` after every target, so an interrupted
-campaign resumes where it stopped. Results go into docs/fuzzing.md by hand, from
+campaign resumes where it stopped. ``--targets`` restricts a campaign to the targets whose
+names start with one of the given prefixes (a round then counts for those only), and
+``--rounds`` stops it after that many rounds. Results go into docs/fuzzing.md by hand, from
 ``--summary``.
 """
 
@@ -156,6 +159,8 @@ def main(argv: list[str]) -> int:
     ap.add_argument("--per-round", type=int, default=400, help="cases per target per round")
     ap.add_argument("--stall", type=float, default=150.0, help="seconds without progress")
     ap.add_argument("--summary", action="store_true")
+    ap.add_argument("--targets", default="", help="comma-separated prefixes of target names")
+    ap.add_argument("--rounds", type=int, default=0, help="stop after this many rounds")
     ap.add_argument("--worker", nargs=4, metavar=("TARGET", "ROUND", "N", "WORK"))
     args = ap.parse_args(argv)
     signal.signal(signal.SIGTERM, lambda *_: sys.exit(143))  # runs the finally clauses
@@ -174,7 +179,11 @@ def main(argv: list[str]) -> int:
     from _fuzz import new_campaign
 
     names = sorted(new_campaign(OUT / "fuzz-work" / "seeds").targets)
-    while state["total"] < args.cases:
+    if args.targets:
+        names = [n for n in names if n.startswith(tuple(args.targets.split(",")))]
+    rounds = 0
+    while state["total"] < args.cases and not (args.rounds and rounds >= args.rounds):
+        rounds += 1
         t0 = time.monotonic()
         for name in names:
             if name in state.get("in_round", []):

@@ -108,6 +108,28 @@ def test_content_wins_over_suffix(tmp_path):
     assert detect_format(tmp_path / "x.csv", role="destination").name == "csv-long"
 
 
+def test_hdf5_files_are_told_from_netcdf_ones_by_their_marks(tmp_path):
+    # a NetCDF-4 file is an HDF5 file with the netCDF library's marks (netCDF's own
+    # conventions, from memory): the root attribute _NCProperties, or dimension scales
+    # attached to a variable (DIMENSION_LIST); they are looked for in the file's first bytes,
+    # never with the HDF5 library in massarc's process; without them the name decides
+    import h5py
+
+    plain, scaled, marked = tmp_path / "plain.h5", tmp_path / "scaled.h5", tmp_path / "m.h5"
+    named = tmp_path / "plain.nc"
+    for path in (plain, scaled, marked, named):
+        with h5py.File(path, "w") as f:
+            f["mass"] = np.zeros((2, 3), np.uint8)
+            if path is scaled:
+                f["time"] = np.arange(2.0)
+                f["time"].make_scale("time")
+                f["mass"].dims[0].attach_scale(f["time"])
+            if path is marked:
+                f.attrs["_NCProperties"] = "version=2"
+    names = [detect_format(p).name for p in (plain, scaled, marked, named)]
+    assert names == ["hdf5", "netcdf", "netcdf", "netcdf"]
+
+
 def test_options_go_to_the_side_that_knows_them():
     npz, hdf5 = get_format("npz"), get_format("hdf5")
     r, w = split_options({"mass": "m", "compression": "lzf", "to.mass": "x"}, npz, hdf5)

@@ -27,9 +27,10 @@ from ..errors import DataError
 from ..reader import Run
 from ._arrays import array_batches
 from ._axes import axes_for, lattice_axes, parse_axes, times_for
+from ._capped import CappedSource
 from ._export import MASK, MissingMask, guard_mask
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
-from ._native import attribute_shape, bounded_attribute, guard_source, probe_structure
+from ._native import attribute_shape, bounded_attribute, guard_source
 from ._options import guard_options
 from ._signatures import HDF5_MAGIC
 from .registry import Batch, Events, Format, Progress, Source
@@ -52,7 +53,6 @@ class HDF5Source(Source):
 
         self.name = str(path)
         self.options = options
-        probe_structure("hdf5", path, self.name)
         try:
             self.file = h5py.File(path, "r")
         except OSError as exc:
@@ -154,7 +154,7 @@ class HDF5Format(Format):
 
     def read(self, path: Path | str, **options: str) -> Source:
         guard_options(options, self.read_options, "reading hdf5")
-        return HDF5Source(Path(path), dict(options))
+        return CappedSource(HDF5Source, Path(path), dict(options), "HDF5")
 
     def write(
         self,

@@ -29,11 +29,12 @@ from ..errors import DataError
 from ..reader import Chunk, Run
 from ._arrays import array_batches
 from ._axes import lattice_axes, times_for
+from ._capped import CappedSource
 from ._export import MASK, MissingMask, guard_mask
 from ._metadata import META_ATTR, mapped_attrs, meta_json, metadata_from_json
-from ._native import guard_source, probe_structure
+from ._native import guard_source
 from ._options import guard_options
-from ._signatures import HDF5_MAGIC, NETCDF_CLASSIC_MAGIC
+from ._signatures import HDF5_MAGIC, NETCDF4_MARKS, NETCDF_CLASSIC_MAGIC
 from .registry import Batch, Events, Format, Progress, Source
 
 __all__ = ["NetCDFFormat"]
@@ -61,7 +62,6 @@ class NetCDFSource(Source):
 
         self.name = str(path)
         self.options = options
-        probe_structure("netcdf", path, self.name)
         try:
             self.ds = xr.open_dataset(
                 path, decode_times=False, mask_and_scale=False, decode_cf=False
@@ -188,16 +188,13 @@ class NetCDFFormat(Format):
             return True
         if not head.startswith(HDF5_MAGIC):
             return False
-        import h5py
-
-        with h5py.File(path, "r") as f:
-            return "_NCProperties" in f.attrs or any(
-                "DIMENSION_LIST" in obj.attrs for obj in f.values() if hasattr(obj, "attrs")
-            )
+        # the marks of NetCDF-4 in the first bytes, never the HDF5 library in this process
+        # (a damaged file can crash it; see _capped); else the name says what the user means
+        return any(mark in head for mark in NETCDF4_MARKS) or path.name.endswith(self.suffixes)
 
     def read(self, path: Path | str, **options: str) -> Source:
         guard_options(options, self.read_options, "reading netcdf")
-        return NetCDFSource(Path(path), dict(options))
+        return CappedSource(NetCDFSource, Path(path), dict(options), "NetCDF")
 
     def write(
         self,
