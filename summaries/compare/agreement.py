@@ -16,12 +16,13 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
+from massarc.validators.analysis.binning import merge_bins
+
 __all__ = [
     "TestOutcome",
     "correlation_test",
     "holm",
     "largest_mass_test",
-    "merge_bins",
     "occupation_test",
 ]
 
@@ -35,28 +36,6 @@ class TestOutcome:
     dof: float | None
     sizes: tuple[float, float]
     detail: dict[str, Any] = field(default_factory=dict)
-
-
-def merge_bins(expected: np.ndarray, minimum: float) -> list[tuple[int, int]]:
-    """Consecutive bins merged, from m = 0 upward, until each group expects at least
-    ``minimum``; a short remainder joins the last group. Returns (first, last) per group.
-
-    >>> merge_bins(np.array([10.0, 3, 3, 8, 1, 1]), 5.0)
-    [(0, 0), (1, 2), (3, 5)]
-    """
-    groups: list[tuple[int, int]] = []
-    first, total = 0, 0.0
-    for m, e in enumerate(expected):
-        total += float(e)
-        if total >= minimum:
-            groups.append((first, m))
-            first, total = m + 1, 0.0
-    if first < len(expected):
-        if groups:
-            groups[-1] = (groups[-1][0], len(expected) - 1)
-        else:
-            groups.append((0, len(expected) - 1))
-    return groups
 
 
 def occupation_test(
@@ -83,7 +62,7 @@ def occupation_test(
     a, b = np.pad(a, (0, n - len(a))), np.pad(b, (0, n - len(b)))
     size_a, size_b = float(a.sum()), float(b.sum())
     pooled = (a + b) / (size_a + size_b)
-    groups = merge_bins(pooled * min(size_a, size_b), min_expected)
+    groups = merge_bins(pooled * min(size_a, size_b), min_expected, max_bins=n)
     table = np.array([[x[g0 : g1 + 1].sum() for g0, g1 in groups] for x in (a, b)])
     if table.shape[1] < 2:
         return TestOutcome(0.0, 1.0, 0.0, (size_a, size_b), {"bins": len(groups)})

@@ -41,6 +41,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ...analysis.binning import merge_bins
+
 __all__ = ["LawFit", "fit_law", "merge_bins"]
 
 
@@ -69,32 +71,6 @@ class LawFit:
             rel = np.abs(self.observed / self.expected - 1.0)
         j = int(np.nanargmax(rel))
         return j, float(self.observed[j]), float(self.expected[j])
-
-
-def merge_bins(expected: np.ndarray, threshold: float, max_bins: int) -> list[tuple[int, int]]:
-    """Groups of adjacent bins, left to right, each with an expected count >= ``threshold``
-    (raised until there are at most ``max_bins``); a short tail joins the last group.
-
-    >>> merge_bins(np.array([1.0, 9.0, 2.0, 2.0, 2.0, 0.5]), 4.0, 10)
-    [(0, 1), (2, 5)]
-    """
-    values = expected.tolist()
-    while True:
-        groups: list[tuple[int, int]] = []
-        start, acc = 0, 0.0
-        for i, e in enumerate(values):
-            acc += e
-            if acc >= threshold:
-                groups.append((start, i))
-                start, acc = i + 1, 0.0
-        if start < len(values):
-            if groups:
-                groups[-1] = (groups[-1][0], len(values) - 1)
-            else:
-                groups.append((0, len(values) - 1))
-        if len(groups) <= max(max_bins, 1):
-            return groups
-        threshold *= 1.25
 
 
 def _pool(x: np.ndarray, groups: list[tuple[int, int]]) -> np.ndarray:
