@@ -46,21 +46,28 @@ SITES, MASS, REPLICAS, B = 2000, 1200, 4, 4.0
 BASIC = ["schema", "integrity", "time-order", "nonnegative", "conservation"]
 
 
-def build(gib: float, mass: int = MASS) -> Path:
+def build(gib: float, mass: int | None = None, sites: tuple[int, ...] = (SITES,)) -> Path:
     """The cached run of ``gib`` GiB of uncompressed masses (built on first use); ``mass``
-    other than the condensed default (a fluid run at mass 600, say) is named in the file."""
+    other than the condensed default (density 0.6; a fluid run at mass 600, say) and a
+    lattice other than the 2000-site ring (``sites``: one length per axis, each axis a
+    ring) are named in the file."""
     from massarc.schema import parse_metadata
     from massarc.simulate import simulate, snapshot_times
 
-    per_snapshot = SITES * 2 * REPLICAS  # uint16
+    volume = int(np.prod(sites))
+    per_snapshot = volume * 2 * REPLICAS  # uint16
     n = round(gib * 2**30 / per_snapshot)
-    path = DATA / (f"zrp-{SITES}-{n}.zarr" if mass == MASS else f"zrp-{SITES}-{n}-m{mass}.zarr")
+    name = "x".join(str(s) for s in sites)
+    default_mass = MASS * volume // SITES  # the condensed density, 0.6
+    mass = default_mass if mass is None else mass
+    tail = "" if mass == default_mass else f"-m{mass}"
+    path = DATA / f"zrp-{name}-{n}{tail}.zarr"
     if reusable(path, n):
         return path
     meta = parse_metadata(
         {
             "model": {"family": "zrp", "b": B, "drift": "asymmetric"},
-            "lattice": {"sites": [SITES], "boundary": "periodic"},
+            "lattice": {"sites": list(sites), "boundary": "periodic"},
             "run": {"regime": "stationary", "total_mass": mass},
         }
     )

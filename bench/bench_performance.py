@@ -22,10 +22,17 @@ peak resident set is the ``ru_maxrss`` that ``os.wait4`` reports for that child 
   ``massarc check --list``.
 
 Runs (built once with ``massarc.simulate``, cached under ``bench/out/check-data/``): a
-totally asymmetric ZRP, u(k) = 1 + 4/k (rho_c = 1/2), 2000 sites on a ring, 4 replicas from
-the exact steady state, uint16: *condensed* at density 0.6 (the run of ``bench_check.py``)
-and *fluid* at density 0.3. The machine is shared: each measurement is the fastest of
-``--repeat`` (alternating kinds), and the load average is written beside the numbers.
+totally asymmetric ZRP, u(k) = 1 + 4/k (rho_c = 1/2), 4 replicas from the exact steady
+state, one snapshot per unit time, uint16, every axis a ring: *condensed* at density 0.6
+(the run of ``bench_check.py``) and *fluid* at density 0.3 on 2000 sites, and the condensed
+density on a 50 x 40 torus (2D), all 1 GiB. Memory is also measured as the condensed run
+grows in snapshots (2000 sites; 1/4 and 4 times the main run) and in sites (500 and 8000
+sites, as many snapshots as the main run). On the 2000-site runs, ``decode``, ``check``
+and ``summarize`` are repeated with one thread (scaling), and every main run gets its
+empirical entropy (``bench_compression``'s H0 and H1) beside its compression ratio.
+
+The machine is shared: each measurement is the fastest of ``--repeat`` (alternating
+kinds), and the load average is written beside the numbers.
 """
 
 from __future__ import annotations
@@ -33,16 +40,19 @@ from __future__ import annotations
 import argparse
 import datetime
 import json
+import math
 import os
 import platform
 import shutil
 import subprocess
 import sys
 import time
+from dataclasses import dataclass
 from pathlib import Path
 
 import bench_check
 import numpy as np
+from bench_compression import conditional_entropy_bits, entropy_bits
 
 HERE = Path(__file__).parent
 OUT = HERE / "out"
@@ -76,7 +86,7 @@ from zarr.codecs import BloscCodec, BloscShuffle, Crc32cCodec
 src = np.load(sys.argv[1], mmap_mode="r")
 tc = int(sys.argv[3])
 z = zarr.create_array(
-    sys.argv[2], shape=src.shape, chunks=(1, tc, src.shape[2]), dtype=src.dtype,
+    sys.argv[2], shape=src.shape, chunks=(1, tc, *src.shape[2:]), dtype=src.dtype,
     fill_value=np.iinfo(src.dtype).max, zarr_format=3,
     compressors=[BloscCodec(cname="zstd", clevel=5, shuffle=BloscShuffle.bitshuffle),
                  Crc32cCodec()],
@@ -88,17 +98,40 @@ for r in range(src.shape[0]):
 """
 
 
-def build(kind: str, gib: float) -> Path:
-    """The cached run of ``kind`` with ``gib`` GiB of uncompressed masses (``bench_check``'s
-    builder: the condensed run is the one it measures)."""
-    return bench_check.build(gib, round(DENSITY[kind] * SITES))
+@dataclass(frozen=True)
+class Spec:
+    """One run of the record: its phase, size, lattice and what it is measured for.
+
+    ``role``: ``"main"`` (every command, ``--repeat`` times, phases, one thread against
+    all, entropy bound), ``"snapshots"`` or ``"sites"`` (memory: the run grows in that).
+    """
+
+    kind: str  # "condensed" or "fluid": the density of DENSITY
+    gib: float
+    sites: tuple[int, ...] = (SITES,)
+    role: str = "main"
+
+    @property
+    def mass(self) -> int:
+        return round(DENSITY[self.kind] * math.prod(self.sites))
+
+    @property
+    def label(self) -> str:
+        lattice = "x".join(str(n) for n in self.sites)
+        return f"{self.kind}, {lattice} sites"
 
 
-def meta_dict(kind: str) -> dict:
+def build(spec: Spec) -> Path:
+    """The cached run of ``spec`` (``bench_check``'s builder: the condensed 2000-site run
+    is the one it measures)."""
+    return bench_check.build(spec.gib, spec.mass, spec.sites)
+
+
+def meta_dict(spec: Spec) -> dict:
     return {
         "model": {"family": "zrp", "b": B, "drift": "asymmetric"},
-        "lattice": {"sites": [SITES], "boundary": "periodic"},
-        "run": {"regime": "stationary", "total_mass": round(DENSITY[kind] * SITES)},
+        "lattice": {"sites": list(spec.sites), "boundary": "periodic"},
+        "run": {"regime": "stationary", "total_mass": spec.mass},
     }
 
 
@@ -129,15 +162,14 @@ def timed(cmd: list[str]) -> tuple[float, int, int]:
     return res["seconds"], res["status"], res["peak"]
 
 
-def export_npy(path: Path) -> tuple[Path, Path, int]:
+def export_npy(path: Path, spec: Spec) -> tuple[Path, Path, int]:
     """The run's masses as ``.npy`` beside it (made once), its metadata file, chunk length."""
     import zarr
 
     arr = zarr.open_group(str(path), mode="r")["mass"]
     npy = path.with_suffix(".npy")
     meta = path.with_suffix(".meta.json")
-    kind = "fluid" if "-m" in path.stem else "condensed"
-    meta.write_text(json.dumps(meta_dict(kind)))
+    meta.write_text(json.dumps(meta_dict(spec)))
     if not npy.exists() or npy.stat().st_size < arr.nbytes:
         out = np.lib.format.open_memmap(npy, mode="w+", dtype=arr.dtype, shape=arr.shape)
         step = arr.chunks[1]
@@ -149,8 +181,18 @@ def export_npy(path: Path) -> tuple[Path, Path, int]:
     return npy, meta, int(arr.chunks[1])
 
 
-def commands(path: Path, workers: int, scratch: Path) -> dict[str, list[str]]:
-    npy, meta, tc = export_npy(path)
+def entropy(npy: Path, snapshots: int = 4000) -> dict[str, float]:
+    """Empirical entropies (bits per site and snapshot) of the first ``snapshots`` of every
+    replica: H0 of the single-site mass, H1 of a mass given the same site's mass at the
+    previous snapshot (``bench_compression``'s estimators)."""
+    x = np.load(npy, mmap_mode="r")
+    head = np.asarray(x[:, :snapshots]).reshape(x.shape[0], min(snapshots, x.shape[1]), -1)
+    h0 = entropy_bits(np.bincount(head.reshape(-1).astype(np.int64)))
+    return {"h0": h0, "h1": conditional_entropy_bits(head), "bits": 8.0 * x.dtype.itemsize}
+
+
+def commands(path: Path, spec: Spec, workers: int, scratch: Path) -> dict[str, list[str]]:
+    npy, meta, tc = export_npy(path, spec)
     py = sys.executable
     return {
         "decode": [py, "-c", DECODE, str(path), str(workers)],
@@ -332,27 +374,47 @@ def main() -> None:
     subprocess.run(
         [sys.executable, "-m", "compileall", "-q", *(str(root / d) for d in CODE)], check=True
     )
-    plan = [("condensed", small), ("fluid", small)]
+    snapshots = round(small * 2**30 / (2 * SITES * bench_check.REPLICAS))
+    plan = [Spec("condensed", small), Spec("fluid", small), Spec("condensed", small, (50, 40))]
     if not args.no_large:
-        plan += [("condensed", smaller), ("condensed", large)]
-    for kind, gib in plan:
-        path = build(kind, gib)
-        cmds = commands(path, workers, scratch)
+        # memory as the run grows in snapshots (2000 sites), then in sites (as many
+        # snapshots as the main run: 500 and 8000 sites are 1/4 and 4 times its size)
+        plan += [Spec("condensed", smaller, role="snapshots")]
+        plan += [Spec("condensed", large, role="snapshots")]
+        plan += [Spec("condensed", smaller, (SITES // 4,), role="sites")]
+        plan += [Spec("condensed", large, (SITES * 4,), role="sites")]
+    for spec in plan:
+        path = build(spec)
+        cmds = commands(path, spec, workers, scratch)
         for f in path.rglob("*"):  # the page cache: every kind reads the same warm files
             if f.is_file():
                 f.read_bytes()
         timed(cmds["check"])  # numba's cache and Python's bytecode, outside the timings
-        repeat = args.repeat if gib == small else 1
-        m = measure(cmds, repeat, scratch)
+        main_run = spec.role == "main"
+        m = measure(cmds, args.repeat if main_run else 1, scratch)
         stored = sum(f.stat().st_size for f in (path / "mass").rglob("*") if f.is_file())
-        nbytes = int(np.load(path.with_suffix(".npy"), mmap_mode="r").nbytes)
-        entry = {"kind": kind, "gib": gib, "bytes": nbytes, "stored_bytes": stored, **m}
-        if gib == small:
+        npy = path.with_suffix(".npy")
+        arr = np.load(npy, mmap_mode="r")
+        entry = {
+            "kind": spec.kind, "label": spec.label, "sites": list(spec.sites), "gib": spec.gib,
+            "role": spec.role, "bytes": int(arr.nbytes), "snapshots": int(arr.shape[1]),
+            "stored_bytes": stored, **m,
+        }  # fmt: skip
+        if main_run:
             entry["phases"] = phases(path, workers)
+            entry["entropy"] = entropy(npy)
+        if main_run and spec.sites == (SITES,) and workers > 1:
+            # scaling: the same commands from one thread (the baseline too)
+            one = commands(path, spec, 1, scratch)
+            entry["one_worker"] = measure(
+                {k: one[k] for k in ("decode", "check", "summarize")}, args.repeat, scratch
+            )
         result["runs"].append(entry)
         print(
-            f"{kind} {gib:g} GiB: " + ", ".join(f"{k} {v['seconds']:.2f} s" for k, v in m.items())
+            f"{spec.label} {spec.gib:g} GiB: "
+            + ", ".join(f"{k} {v['seconds']:.2f} s" for k, v in m.items())
         )
+        assert entry["snapshots"] == snapshots or spec.role == "snapshots", entry["snapshots"]
     shutil.rmtree(scratch, ignore_errors=True)
     result["load_before"] = load_before
     result["load_after"] = os.getloadavg()
@@ -370,6 +432,117 @@ def _table(head: tuple[str, str], rows: dict[str, float]) -> list[str]:
     return [f"| {head[0]} | {head[1]} |", "| --- | ---: |"] + [
         f"| `{k}` | {v:.2f} |" for k, v in rows.items()
     ]
+
+
+def _label(run: dict) -> str:
+    return run.get("label", run["kind"])
+
+
+def _phases_table(res: dict) -> list[str]:
+    timed_phases = [r for r in res["runs"] if "phases" in r]
+    if not timed_phases:
+        return []
+    names = list(timed_phases[0]["phases"])
+    lines = [
+        "",
+        "## Where the time of `check` goes",
+        "",
+        "Seconds of each phase in one fresh process (`PHASES` in the bench), beside the",
+        "wall time of the whole command above:",
+        "",
+        "| run | " + " | ".join(names) + " |",
+        "| --- |" + " ---: |" * len(names),
+    ]
+    for r in timed_phases:
+        cells = " | ".join(f"{r['phases'][n]:.2f}" for n in names)
+        lines.append(f"| {_label(r)} {r['gib']:g} GiB | {cells} |")
+    return lines
+
+
+def _scaling_table(res: dict) -> list[str]:
+    runs = [r for r in res["runs"] if "one_worker" in r]
+    if not runs:
+        return []
+    lines = [
+        "",
+        f"## From one thread to {res['workers']}",
+        "",
+        "The same commands with `--workers 1` (the baseline decodes from one thread too);",
+        "speed-up: seconds with one thread over seconds with all. `convert` and the encode",
+        "baseline write from one thread, so they have no row here.",
+        "",
+        f"| run | command | 1 thread (s) | {res['workers']} threads (s) | speed-up |",
+        "| --- | --- | ---: | ---: | ---: |",
+    ]
+    for r in runs:
+        for kind, one in r["one_worker"].items():
+            lines.append(
+                f"| {_label(r)} {r['gib']:g} GiB | {kind} | {one['seconds']:.2f} | "
+                f"{r[kind]['seconds']:.2f} | {one['seconds'] / r[kind]['seconds']:.2f} |"
+            )
+    return lines
+
+
+def _entropy_table(res: dict) -> list[str]:
+    runs = [r for r in res["runs"] if "entropy" in r]
+    if not runs:
+        return []
+    lines = [
+        "",
+        "## Compression against the empirical entropy of the data",
+        "",
+        "H0: entropy of one site's mass; H1: of a mass given the same site's mass at the",
+        "previous snapshot (bits per site and snapshot, from the first 4000 snapshots of",
+        "every replica; `bench_compression.py`'s estimators). A coder that knows only that",
+        "context needs at least H1 bits, so stored bits / H1 is the bound's ratio; the",
+        "codecs also see neighbouring sites, which H1 does not, so they may pass it.",
+        "",
+        "| run | stored | H0 (bits) | H1 (bits) | bound bits / H0 | bound bits / H1 |",
+        "| --- | ---: | ---: | ---: | ---: | ---: |",
+    ]
+    for r in runs:
+        e = r["entropy"]
+        comp = r["bytes"] / max(r["stored_bytes"], 1)
+        lines.append(
+            f"| {_label(r)} | {comp:.1f}x | {e['h0']:.2f} | {e['h1']:.2f} | "
+            f"{e['bits'] / e['h0']:.1f}x | {e['bits'] / e['h1']:.1f}x |"
+        )
+    return lines
+
+
+def _memory_table(res: dict, grows: str) -> list[str]:
+    """Peak memory of the main condensed run and the runs that grow from it in ``grows``."""
+    main = [r for r in res["runs"] if r.get("role", "main") == "main"][:1]
+    sizes = sorted(main + [r for r in res["runs"] if r.get("role") == grows],
+                   key=lambda r: r["bytes"])  # fmt: skip
+    if len(sizes) < 3:
+        return []
+    a, b = main[0], sizes[-1]
+    if grows == "snapshots":
+        what = f"their number of snapshots ({SITES} sites, 4 replicas each)"
+        unit, added = "(replica, snapshot)", (b["bytes"] - a["bytes"]) / (2 * SITES)
+    else:
+        what = f"their number of sites ({a['snapshots']} snapshots, 4 replicas each)"
+        n = a["snapshots"] * 4
+        unit, added = "site", (b["bytes"] - a["bytes"]) / (2 * n)
+    head = " | ".join(f"{r['gib']:g} GiB (MB)" for r in sizes)
+    lines = [
+        "",
+        f"## Peak memory as the run grows in {grows} (condensed run)",
+        "",
+        f"The sizes differ in {what}; growth is from {a['gib']:g} to {b['gib']:g} GiB; the",
+        f"last column is the extra peak per added {unit} between those two sizes.",
+        "",
+        f"| command | {head} | growth | bytes per {unit} |",
+        "| --- |" + " ---: |" * (len(sizes) + 2),
+    ]
+    for kind in KINDS:
+        peaks = " | ".join(f"{r[kind]['peak_rss'] / 1e6:.0f}" for r in sizes)
+        pa, pb = a[kind]["peak_rss"], b[kind]["peak_rss"]
+        lines.append(
+            f"| {kind} | {peaks} | {100 * (pb / pa - 1):+.0f} % | {(pb - pa) / added:.0f} |"
+        )
+    return lines
 
 
 def render(res: dict, quick: bool) -> str:
@@ -420,50 +593,14 @@ def render(res: dict, quick: bool) -> str:
         for kind in KINDS:
             base = run["encode" if kind in ("encode", "convert") else "decode"]
             r = run[kind]
-            head = f"| {run['kind']} | {run['gib']:g} GiB | {comp:.1f}x" if first else "| | |"
+            head = f"| {_label(run)} | {run['gib']:g} GiB | {comp:.1f}x" if first else "| | |"
             first = False
             lines.append(
                 f"{head} | {kind} | {r['seconds']:.2f} | {r['seconds'] / base['seconds']:.2f} "
                 f"| {run['bytes'] / r['seconds'] / 1e6:.0f} | {r['peak_rss'] / 1e6:.0f} |"
             )
-    timed_phases = [r for r in res["runs"] if "phases" in r]
-    if timed_phases:
-        names = list(timed_phases[0]["phases"])
-        lines += [
-            "",
-            "## Where the time of `check` goes",
-            "",
-            "Seconds of each phase in one fresh process (`PHASES` in the bench), beside the",
-            "wall time of the whole command above:",
-            "",
-            "| run | " + " | ".join(names) + " |",
-            "| --- |" + " ---: |" * len(names),
-        ]
-        for r in timed_phases:
-            cells = " | ".join(f"{r['phases'][n]:.2f}" for n in names)
-            lines.append(f"| {r['kind']} {r['gib']:g} GiB | {cells} |")
-    sizes = sorted((r for r in res["runs"] if r["kind"] == "condensed"), key=lambda r: r["gib"])
-    if len(sizes) >= 3:
-        head = " | ".join(f"{r['gib']:g} GiB (MB)" for r in sizes)
-        lines += [
-            "",
-            "## Peak memory against run size (condensed run)",
-            "",
-            "The sizes differ in their number of snapshots (2000 sites, 4 replicas each); growth",
-            f"is from {sizes[1]['gib']:g} to {sizes[-1]['gib']:g} GiB; per snapshot: the extra",
-            "peak per added (replica, snapshot) between those two sizes.",
-            "",
-            f"| command | {head} | growth | bytes per (replica, snapshot) |",
-            "| --- |" + " ---: |" * (len(sizes) + 2),
-        ]
-        a, b = sizes[1], sizes[-1]
-        added = (b["bytes"] - a["bytes"]) / (2 * SITES)  # uint16 masses of SITES sites
-        for kind in KINDS:
-            peaks = " | ".join(f"{r[kind]['peak_rss'] / 1e6:.0f}" for r in sizes)
-            pa, pb = a[kind]["peak_rss"], b[kind]["peak_rss"]
-            lines.append(
-                f"| {kind} | {peaks} | {100 * (pb / pa - 1):+.0f} % | {(pb - pa) / added:.0f} |"
-            )
+    lines += _phases_table(res) + _scaling_table(res) + _entropy_table(res)
+    lines += _memory_table(res, "snapshots") + _memory_table(res, "sites")
     lines += [
         "",
         "Reading it. `conservation` is the least audit of a whole run: start-up, the pass",
