@@ -21,6 +21,7 @@ from scipy.signal import lfilter
 
 from massarc.validators.analysis.diagnostics import (
     autocorrelation,
+    autocovariance,
     detect_equilibration,
     ess_bulk,
     ess_tail,
@@ -61,6 +62,26 @@ def test_autocorrelation_matches_direct_sum():
     d = x - x.mean()
     direct = np.correlate(d, d, mode="full")[d.size - 1 :]  # numpy reference
     np.testing.assert_allclose(autocorrelation(x), direct / direct[0], rtol=1e-10, atol=1e-12)
+
+
+@pytest.mark.parametrize("n", [1, 2, 7, 300, 4097, 67109])
+def test_autocorrelation_of_any_length_matches_direct_sum(n):
+    # zero padding to a 5-smooth length >= 2n must still give the linear (not circular)
+    # autocorrelation: numpy's np.correlate as the reference
+    x = ar1(0.5, (n,), seed=n) + np.arange(n) % 3
+    d = x - x.mean()
+    direct = np.correlate(d, d, mode="full")[d.size - 1 :] / n
+    np.testing.assert_allclose(autocovariance(x), direct, rtol=1e-9, atol=1e-9)
+
+
+def test_fft_length_is_the_next_fast_length():
+    # scipy.fft.next_fast_len(real=True): the least 5-smooth length >= the target
+    from scipy.fft import next_fast_len
+
+    from massarc.validators.analysis.diagnostics.autocorr import _fft_length
+
+    for n in [*range(1, 3000), 33554, 67109, 268435]:
+        assert _fft_length(n) == next_fast_len(2 * n, real=True)
 
 
 @pytest.mark.parametrize("phi", [0.0, 0.6, 0.95])
