@@ -213,20 +213,22 @@ def main() -> None:
     args = ap.parse_args()
     if args.tables:
         saved = json.loads(OUT.read_text())
-        write_doc(summarise(saved["cells"]), saved["runs"])
+        write_doc(summarise(saved["cells"]))
         return
     started = time.perf_counter()
-    cells: dict[str, list[dict]] = {}
     previous = json.loads(OUT.read_text()) if OUT.exists() else {}
-    kept = previous.get("cells", {}) if previous.get("runs") == args.runs else {}
+    # cells of other spacings or families stay as measured (whatever their number of runs);
+    # a cell of this call is kept when it has --runs runs and is not named by --redo
+    kept = previous.get("cells", {})
+    cells: dict[str, list[dict]] = dict(kept)
     for spacing in args.spacings:
         for family in args.families:
             for drift in ("symmetric", "driven"):
                 for boundary in ("periodic", "reflecting"):
                     name = f"{family} {drift} {'ring' if boundary == 'periodic' else 'walls'}"
                     name += f", every {spacing:g}"
-                    if name in kept and not any(r in name for r in args.redo):
-                        cells[name] = kept[name]
+                    redo = any(r in name for r in args.redo)
+                    if name in kept and len(kept[name]) == args.runs and not redo:
                         continue
                     t0 = time.perf_counter()
                     runs = []
@@ -247,7 +249,7 @@ def main() -> None:
     }
     OUT.write_text(json.dumps(result, indent=1))
     if args.doc:
-        write_doc(summary, args.runs)
+        write_doc(summary)
     print(f"done in {time.perf_counter() - started:.0f} s; wrote {OUT}")
 
 
@@ -257,13 +259,25 @@ def _rate(counts: dict[str, int], n: int, key: str = "fail") -> str:
     return f"{k}/{n} ({lo:.2f}-{hi:.2f})"
 
 
-def write_doc(summary: dict[str, Any], runs: int) -> None:
+def _runs_per_spacing(summary: dict[str, Any]) -> str:
+    """The run counts for the header: 50 runs per cell, or 50 (20 at every 1000)."""
+    by: dict[str, set[int]] = {}
+    for name, row in summary.items():
+        by.setdefault(name.rsplit("every ", 1)[-1], set()).add(row["runs"])
+    counts = Counter(n for ns in by.values() for n in ns)
+    common = counts.most_common(1)[0][0] if counts else 0
+    other = [f"{'/'.join(map(str, sorted(ns)))} at every {sp}" for sp, ns in by.items()
+             if ns != {common}]  # fmt: skip
+    return f"{common} runs per cell" + (f" ({', '.join(other)})" if other else "")
+
+
+def write_doc(summary: dict[str, Any]) -> None:
     lines = [
         "# Calibration of the `drift` and `independence` checks",
         "",
         "Measured by `bench/calibrate_drift_independence.py` (see its docstring for the "
         "runs and the planted faults): L = 200 sites, 4 replicas, no declared start, a "
-        f"snapshot every 10, 100 or 1000 hop times, {runs} runs per cell. Counts are "
+        f"snapshot every 10, 100 or 1000 hop times, {_runs_per_spacing(summary)}. Counts are "
         "`fail` (with the Clopper-Pearson 95% interval of the rate) unless stated; "
         "`skip` is the check saying the data cannot decide.",
         "",
