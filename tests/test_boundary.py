@@ -202,3 +202,19 @@ def test_short_axes_are_not_tested():
     m = meta("zrp", (6,), ["periodic"])
     short = check(simulate(m, np.arange(50.0), replicas=2, seed=1, mass=6, location=memory()))
     assert short.status == "skip" and "fewer than 8 sites" in short.message
+
+
+def test_a_run_passes_only_when_every_axis_is_judged():
+    # common practice: a pass claims every declared boundary was verified. A 2D lattice
+    # whose y axis is too short to test skips, saying which axis was judged and how (an
+    # axis left undecided by the data does the same: the 2D cells of
+    # bench/calibrate_boundary.py at spacing 1000)
+    strip = sampled(meta("zrp", (48, 6), ["periodic", "periodic"]), n=150, spacing=10.0)
+    result = check(strip)
+    assert result.status == "skip", result.message
+    assert "not every axis could be judged" in result.message
+    assert "y periodic" in result.message and "x has fewer than 8 sites" in result.message
+    assert [a["outcome"] for a in result.values["axes"]] == ["pass"]
+    # the same lattice with both axes long enough passes
+    full = check(sampled(meta("zrp", (48, 12), ["periodic", "periodic"]), n=150, spacing=10.0))
+    assert full.status == "pass", full.message
