@@ -72,7 +72,8 @@ class BoundaryCheck(Check):
     reconstructed from the masses are the true ones (far-apart bonds carry nearly
     independent transfers; none runs against a declared total drift). From an event log,
     exactly: every logged move joins declared neighbours. Statistics and p-values: the
-    module docstring.
+    module docstring. Without an event log the check passes only when every axis is
+    judged; an axis the data cannot decide, or shorter than 8 sites, makes it skip.
 
     Where
     -----
