@@ -59,7 +59,9 @@ SNAPSHOTS_2D = {10.0: 150, 100.0: 150, 1000.0: 60}
 #: pair (rows of symmetric cells, where nothing is carried, were kept from version 2).
 #: 4: walls are passed only when a ring of these data would be caught, its pair correlation
 #: taken from the data (at most 1/2) instead of 1/2; can only turn a pass into a skip.
-VERSION = 4
+#: 5: walls are passed only when the data also reject a ring at alpha (the pair's correlation
+#: clearly below the ring's); can only turn a pass into a skip.
+VERSION = 5
 DOC = Path(__file__).resolve().parents[1] / "docs" / "calibration-boundary.md"
 
 

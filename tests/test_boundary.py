@@ -218,3 +218,22 @@ def test_a_run_passes_only_when_every_axis_is_judged():
     # the same lattice with both axes long enough passes
     full = check(sampled(meta("zrp", (48, 12), ["periodic", "periodic"]), n=150, spacing=10.0))
     assert full.status == "pass", full.message
+
+
+def test_a_ring_correlated_between_walls_and_ring_is_left_undecided():
+    # The planted fault is real: a symmetric CMAM ring (L = 200, a snapshot every 10 hop
+    # times, seed 100026 of bench/calibrate_boundary.py) declared walls. Its pair of bonds
+    # correlated by 0.29: above what walls tolerate, but not clearly below what a ring of
+    # these data shows, and the check passed it as walls while a ring would have been
+    # caught. It must not pass; it says what would decide.
+    m = meta("cmam", (200,), ["periodic"])
+    times = 4.0 * 200**2 + np.arange(400) * 10.0
+    x = simulate(m, times, replicas=4, seed=100_026, mass=200, initial="uniform")
+    loc = memory()
+    with create_run(loc, meta("cmam", (200,), ["reflecting"])) as w:
+        w.append(times - times[0], x)
+    result = check(open_run(loc))
+    assert result.status != "pass", result.message
+    if result.status == "skip":
+        assert result.values["axes"][0]["reason"] == "between", result.message
+        assert "more snapshot pairs would decide" in result.message

@@ -30,6 +30,7 @@ from scipy import stats
 from massarc.archive import Chunk, ChunkRef
 from massarc.schema import parse_metadata
 from massarc.validators.checks.boundary.judge import (
+    WallTest,
     judge_axis,
     ring_test,
     spreading,
@@ -205,3 +206,25 @@ def test_a_ring_declared_walls_is_weighed_against_its_own_thirds_correlation(mak
         turned.append(wall.ring_like)
     assert np.mean(turned) == pytest.approx(min(0.5, float(np.mean(own))), abs=0.03)
     assert np.mean(own) < 0.48 and max(turned) < 0.48  # 1/2 would overstate a ring
+
+
+def test_walls_pass_only_when_the_data_reject_a_ring():
+    # Outside truth: the one-sided critical t of scipy.stats.t. The numbers are those of a
+    # symmetric CMAM ring declared walls (L = 200, a snapshot every 10 hop times; seed
+    # 100026 of bench/calibrate_boundary.py): its pair correlated by 0.294, between the
+    # 0.15 walls tolerate and the 0.439 of its turns. Power alone passed it; the mirror of
+    # the wall test, (rho_ring - mean) / se >= t_crit, does not.
+    alpha, dof = 1e-4, 63
+    crit = stats.t.isf(alpha, dof)
+    se = (0.294 - 0.15) / 3.327
+    marginal = WallTest((66, 132), 66, 1.29, 0.15, 0.294, se, 3.327, dof, 7.3e-4, 64, 0.439)
+    assert marginal.caught(alpha, 2.0)  # a ring of these data would be caught ...
+    assert (0.439 - 0.294) / se < crit and not marginal.ring_rejected(alpha)  # ... not this
+    walls = WallTest((66, 132), 66, 1.29, 0.15, 0.02, se, -3.0, dof, 0.99, 64, 0.439)
+    assert (0.439 - 0.02) / se >= crit and walls.ring_rejected(alpha)
+    edge = 0.439 - crit * se  # just below and just above the critical value
+
+    def at(mean: float) -> WallTest:
+        return WallTest((66, 132), 66, 1.29, 0.15, mean, se, 0.0, dof, 0.5, 64, 0.439)
+
+    assert at(edge - 1e-9).ring_rejected(alpha) and not at(edge + 1e-9).ring_rejected(alpha)

@@ -24,8 +24,9 @@ judged (pass or fail) when a boundary of the other kind would be caught, or the 
 it out; otherwise it is not judged, and the check says why with the measured spreading
 distance and the axis length: snapshots so far apart that they are effectively independent
 samples (walls and a ring then look alike), a declared drift that carries fluctuations
-across the tested bonds between snapshots, mass that barely moves, a declared start that
-breaks the ring's symmetry, or an open axis without an inflow record. The check skips when
+across the tested bonds between snapshots, mass that barely moves, a pair correlated
+between what walls allow and what a ring shows, a declared start that breaks the ring's
+symmetry, or an open axis without an inflow record. The check skips when
 an axis is not judged, or too short to test (it passes only when every axis is judged),
 saying which axes were judged and how.
 
@@ -73,7 +74,9 @@ class BoundaryCheck(Check):
     independent transfers; none runs against a declared total drift). From an event log,
     exactly: every logged move joins declared neighbours. Statistics and p-values: the
     module docstring. Without an event log the check passes only when every axis is
-    judged; an axis the data cannot decide, or shorter than 8 sites, makes it skip.
+    judged, a periodic axis when the data reject walls and a reflecting or open one when
+    they reject a ring, both at ``alpha``; an axis the data cannot decide, or shorter than
+    8 sites, makes it skip.
 
     Where
     -----
@@ -279,6 +282,14 @@ def _undecided(v: AxisVerdict, ndim: int) -> str:
             f"{_fmt(wave)} sites between snapshots, which correlates distant bonds on a ring "
             f"as it would behind walls ({spread}; the tested bonds are {far} apart and "
             f"should be {_fmt(REACH * v.ell + wave)}: snapshots closer in time would decide)"
+        )
+    if v.reason == "between" and v.wall is not None:
+        w = v.wall
+        return (
+            f"axis {name} not judged: bonds {w.bonds[0]} and {w.bonds[1]} correlate by "
+            f"{w.mean:.2f}, above the {w.rho0:.2f} walls allow but not clearly below the "
+            f"{w.ring_like:.2f} a ring of these data shows ({spread}; more snapshot pairs "
+            "would decide)"
         )
     return (
         f"axis {name} not judged: too little motion (or too few snapshot pairs) for a "

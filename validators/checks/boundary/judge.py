@@ -72,6 +72,11 @@ Declared reflecting or open: the wall test
     its spreading distance is half that, and the pair is farther apart than it travels).
     Decided when a ring would be caught: (rho_ring - rho0) / se must reach the critical t
     plus ``margin``; or, for walls, the ring test rejects the ring (the data are not a ring).
+    Walls pass only when the data also reject a ring, as the wall test rejects walls:
+    (rho_ring - mean rho) / se must reach the critical t. Power alone passed a ring whose
+    pair correlated by 0.29, between the 0.15 walls tolerate and the 0.44 its turns showed
+    (measured: symmetric CMAM rings, L = 200, a snapshot every 10 hop times, declared
+    walls, 1 of 50 passed); such an axis is undecided (``between``).
     rho_ring is what a ring of these data would show. Pearson's correlation is 1/2, but
     the mean over blocks of the normal-score correlation is lower: short blocks bias a
     correlation towards 0, and so do a few huge moves carrying the changes (measured:
@@ -329,6 +334,16 @@ class WallTest:
         from ...analysis.tails import student_isf  # scipy.special, imported on first use
 
         return (self.ring_like - self.rho0) / self.se >= student_isf(alpha, self.dof) + margin
+
+    def ring_rejected(self, alpha: float) -> bool:
+        """Whether the data reject a ring at ``alpha``: the pair's mean correlation lies
+        below ``ring_like`` by at least the critical one-sided t (the mirror of the wall
+        test, which rejects walls when it lies above ``rho0``)."""
+        if not (self.dof > 0 and math.isfinite(self.se) and math.isfinite(self.ring_like)):
+            return False
+        from ...analysis.tails import student_isf  # scipy.special, imported on first use
+
+        return (self.ring_like - self.mean) / self.se >= student_isf(alpha, self.dof)
 
 
 def _normal_scores(y: np.ndarray) -> np.ndarray:
@@ -609,6 +624,8 @@ def judge_axis(
     resolved = wall is not None and wall.caught(alpha, margin)
     if resolved and wall is not None and carried > 0:
         resolved = wall.spacing >= reach * ell + carried
+    between = resolved and wall is not None and not wall.ring_rejected(alpha)
+    resolved = resolved and not between
     if boundary == "reflecting" and ring_rejected:
         resolved = True  # the data are not a ring
     if resolved:
@@ -619,6 +636,8 @@ def judge_axis(
         reason = "spread"
     elif carried > 0 and wall.spacing < reach * ell + carried:
         reason = "wave"
+    elif between:
+        reason = "between"
     else:
         reason = "power"
     return verdict("undecided", p, reason)
