@@ -280,12 +280,17 @@ def write_doc(rows: list[dict]) -> None:
         "verdict, a `skip` the check saying it cannot decide). Intervals: Clopper-Pearson "
         "95 %.\n\n"
         "    nice -n 10 .venv/bin/python bench/calibrate_boundary.py "
-        "--spacing 10 --spacing 100 --doc\n\n"
+        "--spacing 10 --spacing 100 --doc\n"
+        "    nice -n 10 .venv/bin/python bench/calibrate_boundary.py "
+        "--spacing 1000 --runs 20 --resume --doc\n\n"
         + table(rows)
         + "\n\nReasons recorded for the axes that were not judged (counts of runs; `power`: "
-        "a boundary of the other kind would not be caught; `wave`: the declared drift carries "
-        "fluctuations across the tested pair; `spread`: the tested bonds are not far enough "
-        "apart in spreading distances; `still`: the mass barely moves):\n\n" + "\n".join(why) + "\n"
+        "a boundary of the other kind would not be caught; `between`: the pair correlates "
+        "above what walls tolerate but not clearly below what a ring of these data shows; "
+        "`wave`: the declared drift carries fluctuations across the tested pair; `spread`: "
+        "the tested bonds are not far enough apart in spreading distances; `still`: the mass "
+        "barely moves; `pile`, on an honest axis that passed: a ring judged by the mass a "
+        "declared drift would pile against walls):\n\n" + "\n".join(why) + "\n"
     )
     print(f"wrote {DOC}")
 
