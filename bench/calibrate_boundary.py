@@ -5,16 +5,16 @@
     nice -n 10 .venv/bin/python bench/calibrate_boundary.py --only zrp --spacing 100
 
 Runs of the reference sampler on L = 200 sites (2D: 12 x 200, the x axis of 200 sites
-under test; y is a ring of 12), 4 replicas, a snapshot every 10, 100 or 1000 hop times
-(hop time 1/u(infinity) = 1 for the ZRP, 1/D = 1 for the CMAM), written without a declared
-start. Families: ZRP u(k) = 1 + 4/k at density 1.5 (condensed: one site holds most of the
-mass) and CMAM D = w = 1 at density 1 (condensed: clusters move whole, heavy-tailed
-transfers), each symmetric and driven (right probability 0.8); the ZRP also totally driven
-(right probability 1); and a 2D symmetric ZRP walled along x (or a torus). 1D runs hold
-400, 300 and 150 snapshots at spacings 10, 100 and 1000; 2D runs 150, 150 and 60. Starts:
-the exact steady state where the sampler has one (ZRP rings of any drift, symmetric ZRP
-with walls), otherwise an even spread run for a warm-up (CMAM: 4 L^2 / D; driven ZRP with
-walls: 2 10^4) before the first snapshot.
+under test, y a ring of 12; and a 48 x 48 square, y a ring), 4 replicas, a snapshot every
+10, 100 or 1000 hop times (hop time 1/u(infinity) = 1 for the ZRP, 1/D = 1 for the CMAM),
+written without a declared start. Families: ZRP u(k) = 1 + 4/k at density 1.5 (condensed:
+one site holds most of the mass) and CMAM D = w = 1 at density 1 (condensed: clusters move
+whole, heavy-tailed transfers), each symmetric and driven (right probability 0.8); the ZRP
+also totally driven (right probability 1); and a 2D symmetric ZRP walled along x (or a
+torus), on both lattices. 1D runs hold 400, 300 and 150 snapshots at spacings 10, 100 and
+1000; 2D runs 150, 150 and 60. Starts: the exact steady state where the sampler has one
+(ZRP rings of any drift, symmetric ZRP with walls), otherwise an even spread run for a
+warm-up (CMAM: 4 L^2 / D; driven ZRP with walls: 2 10^4) before the first snapshot.
 
 Each run is audited twice at the check's defaults (alpha = 1e-4): as simulated (a ``fail``
 is a false alarm) and with the x axis swapped between periodic and reflecting (a ``fail``
@@ -51,6 +51,7 @@ from massarc.validators.checks.boundary.transfers import TransferStatistic
 OUT = Path(__file__).resolve().parent / "out" / "calibrate_boundary.json"
 L = 200
 LY = 12
+SIDE = 48  # the square 2D lattice: both axes long enough to judge, as groups run them
 REPLICAS = 4
 SNAPSHOTS = {10.0: 400, 100.0: 300, 1000.0: 150}
 SNAPSHOTS_2D = {10.0: 150, 100.0: 150, 1000.0: 60}
@@ -74,10 +75,13 @@ class Cell:
     p: float
     truth: str
     dims: int = 1
+    side: int = 0  # 2D: a square of this side instead of LY x L
 
     @property
     def sites(self) -> list[int]:
-        return [LY, L] if self.dims == 2 else [L]
+        if self.dims == 2:
+            return [self.side, self.side] if self.side else [LY, L]
+        return [L]
 
     def boundary(self, x_kind: str) -> list[str]:
         return ["periodic", x_kind] if self.dims == 2 else [x_kind]
@@ -91,6 +95,10 @@ CELLS = [
 ]
 CELLS += [Cell("zrp total drift", "zrp", 1.0, truth) for truth in ("periodic", "reflecting")]
 CELLS += [Cell("zrp 2D", "zrp", 0.5, truth, dims=2) for truth in ("periodic", "reflecting")]
+CELLS += [
+    Cell("zrp 2D square", "zrp", 0.5, truth, dims=2, side=SIDE)
+    for truth in ("periodic", "reflecting")
+]
 
 
 def metadata(cell: Cell, x_kind: str) -> RunMeta:
@@ -273,7 +281,8 @@ def write_doc(rows: list[dict]) -> None:
     DOC.write_text(
         "# Calibration of the `boundary` check, as groups store runs\n\n"
         "Measured by `bench/calibrate_boundary.py` (its docstring gives the runs): L = 200 "
-        "(2D: 12 x 200, the x axis of 200 sites under test), 4 replicas, no declared start, a "
+        "(2D: 12 x 200, the x axis of 200 sites under test, and `zrp 2D square` 48 x 48), "
+        "4 replicas, no declared start, a "
         "snapshot every 10, 100 or 1000 hop times, default options (alpha = 1e-4). Each run "
         "is audited as simulated (a `fail` is a false alarm) and with the x axis swapped "
         "between ring and walls (a `fail` is a detection; a `pass` of a swapped run is a wrong "
