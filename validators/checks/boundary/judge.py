@@ -329,21 +329,21 @@ class WallTest:
         """Whether a ring would fail: (rho_ring - rho0) / se must reach the critical t plus
         ``margin``, rho_ring the correlation of normal scores a ring of these data would
         show (``ring_like``, at most 1/2; module docstring)."""
-        if not (self.dof > 0 and math.isfinite(self.se) and math.isfinite(self.ring_like)):
-            return False
-        from ...analysis.tails import student_isf  # scipy.special, imported on first use
-
-        return (self.ring_like - self.rho0) / self.se >= student_isf(alpha, self.dof) + margin
+        return self._below_ring(self.rho0, alpha, margin)
 
     def ring_rejected(self, alpha: float) -> bool:
         """Whether the data reject a ring at ``alpha``: the pair's mean correlation lies
         below ``ring_like`` by at least the critical one-sided t (the mirror of the wall
         test, which rejects walls when it lies above ``rho0``)."""
+        return self._below_ring(self.mean, alpha, 0.0)
+
+    def _below_ring(self, rho: float, alpha: float, margin: float) -> bool:
+        """(ring_like - rho) / se reaches the critical one-sided t plus ``margin``."""
         if not (self.dof > 0 and math.isfinite(self.se) and math.isfinite(self.ring_like)):
             return False
         from ...analysis.tails import student_isf  # scipy.special, imported on first use
 
-        return (self.ring_like - self.mean) / self.se >= student_isf(alpha, self.dof)
+        return (self.ring_like - rho) / self.se >= student_isf(alpha, self.dof) + margin
 
 
 def _normal_scores(y: np.ndarray) -> np.ndarray:
