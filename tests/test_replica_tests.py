@@ -193,3 +193,24 @@ def test_unequal_activity_gives_a_nominal_false_alarm_rate():
         tests = pair_product_test(_tied_walks(rng, 300, [0.15, 0.25, 0.6, 0.9]))
         rejected += {(t.first, t.second): t.p for t in tests}[(0, 1)] < 0.05
     assert rejected <= stats.binom.ppf(0.9995, 200, 0.05)
+
+
+def test_a_profile_that_moves_once_alike_in_every_replica_is_not_judged():
+    """Mass that piles against a wall from a random start: every coarse-profile bin
+    changes once, at the first step, in every replica, and never again (some bins of some
+    replicas start empty and never change at all). After the shared course is removed the
+    deviations are constants fixed by the ties, the product series sits at one value but
+    once, and its spread is rounding: such data hold no information on independence.
+    (Measured: a driven ZRP between walls, L = 200, 100 snapshots 1000 hop times apart,
+    failed an honest run with z = 98 before the test counted moves; common practice: a
+    series constant but at m times holds at most m informative values.)"""
+    rng = np.random.default_rng(2000006)
+    x = np.zeros((4, 100, 32))
+    x[:, 0, :31] = rng.integers(0, 5, size=(4, 31)) * (rng.random((4, 31)) < 0.9)
+    x[:, :, 31] = 80 - x[:, :, :31].sum(axis=2)
+    tests, copy = pair_tests(x, stationary=True)
+    assert len(tests) == 6 and not any(t.reliable for t in tests)
+    assert copy == 1.0
+    # a profile whose bins keep moving is judged (the same start, then white noise)
+    moving = np.repeat(x[:, :1], 1000, axis=1) + rng.standard_normal((4, 1000, 32))
+    assert all(t.reliable for t in pair_tests(moving, stationary=True)[0])

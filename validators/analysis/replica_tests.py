@@ -83,6 +83,9 @@ __all__ = [
 
 #: Scores are capped at this size (a noiseless series would give infinity).
 Z_CAP = 1e6
+#: Deviations of a replica's standardised scores (unit root mean square per component)
+#: from the mean score below this are rounding, not signal (:func:`pair_tests`).
+TIED = 1e-9
 
 
 @dataclass(frozen=True)
@@ -206,16 +209,26 @@ def pair_tests(
     if a.ndim == 2:
         a = a[:, :, None]
     reps = a.shape[0]
-    a = a[:, np.isfinite(a).all(axis=(0, 2))]
+    finite = np.isfinite(a).all(axis=(0, 2))
+    if not finite.all():  # a copy only where some times must go
+        a = a[:, finite]
     if reps < 2 or a.shape[1] < 4 or (reps == 2 and not stationary):
         return [], 1.0
     d, shared = _deviations(a, reps)
+    # a replica whose scores equal the mean score at every time (identical tied patterns,
+    # e.g. a profile that changes once, the same way in every replica, and never again)
+    # deviates by rounding only: its products are noise of size 1e-17 whose tiny spread
+    # would make any mean look significant, so it has nothing to compare
+    live = np.abs(d).max(axis=(1, 2)) > TIED if d.shape[1] else np.zeros(reps, bool)
     out = []
     for r in range(reps):
         for q in range(r + 1, reps):
+            if not (live[r] and live[q]):
+                out.append(PairTest(r, q, math.nan, 0.0, 1.0, 0.0, False))
+                continue
             prod = np.einsum("tk,tk->t", d[r], d[q])
             p_series = prod + shared
-            test = replica_mean_test(p_series[None, :], c)
+            test = _product_test(p_series, c)
             p_value = test.p_one_sided(1.0)
             norm_r = float(np.einsum("tk,tk->", d[r], d[r]))
             norm_q = float(np.einsum("tk,tk->", d[q], d[q]))
@@ -224,10 +237,37 @@ def pair_tests(
             out.append(PairTest(r, q, corr, test.z, p_value, test.ess, test.reliable))
     ps = []
     for r in range(reps):  # a copy: d_q = d_r
-        test = replica_mean_test((np.einsum("tk,tk->t", d[r], d[r]) + shared)[None, :], c)
+        if not live[r]:
+            ps.append(1.0)
+            continue
+        test = _product_test(np.einsum("tk,tk->t", d[r], d[r]) + shared, c)
         ok = test.reliable and math.isfinite(test.z)
         ps.append(test.p_one_sided(1.0) if ok else 1.0)
     return out, float(np.median(ps))
+
+
+def _moves(p: np.ndarray) -> int:
+    """Times at which ``p`` leaves its median beyond rounding."""
+    if not p.size:
+        return 0
+    scale = float(np.max(np.abs(p)))
+    return int(np.count_nonzero(np.abs(p - np.median(p)) > 1e-9 * scale))
+
+
+def _product_test(p: np.ndarray, c: float) -> MeanTest:
+    """:func:`replica_mean_test` of one product series, counting at most one informative
+    value per time it moves. Where most increments tie (a profile that changes once, in
+    every replica alike, then never), the deviations from the mean score are constants
+    fixed by which replica tied how often: the products sit at one value but at a few
+    times, their spread shows no noise at all, and the autocorrelation cannot tell, so
+    the mean would look significant however small. Such a series holds at most as many
+    informative values as it has moves (for a series that moves at most times, nothing
+    changes); a series that never moves holds none."""
+    moves = _moves(p)
+    if moves == 0:
+        nan = math.nan
+        return MeanTest(nan, nan, 0.0, 1.0, p.size, nan, 0.0, 1, nan, False)
+    return replica_mean_test(p[None, :], c, independent=moves)
 
 
 def _standardise(s: np.ndarray) -> np.ndarray:
@@ -246,8 +286,9 @@ def _deviations(a: np.ndarray, reps: int) -> tuple[np.ndarray, np.ndarray]:
     for r in range(inc.shape[0]):  # normal scores of each replica's own ranks, standardised
         for k in range(inc.shape[2]):
             d[r, :, k] = _standardise(rank_normalize(inc[r, :, k]))
+    del inc
     if reps >= 3:
-        d = d - d.mean(axis=0, keepdims=True)  # the shared course in time
+        d -= d.mean(axis=0, keepdims=True)  # the shared course in time
         return d, np.einsum("rtk,rtk->t", d, d) / reps / (reps - 1)
-    d = d - d.mean(axis=1, keepdims=True)
+    d -= d.mean(axis=1, keepdims=True)
     return d, np.zeros(d.shape[1])
