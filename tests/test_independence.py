@@ -165,3 +165,61 @@ def test_a_shared_deterministic_start_is_not_a_reused_seed(kind):
 def test_one_replica_is_skipped():
     meta, x, t = honest(n=30)
     assert check(store(meta, x[:1], t)).status == "skip"
+
+
+def _segments_by_hand(keys: np.ndarray, valid: np.ndarray) -> list[tuple[int, int, int]]:
+    """(flat start, length, key) of the runs of equal consecutive valid keys of each
+    replica that share their key with another run: a plain loop (common practice)."""
+    n_rep, n_snap = keys.shape
+    runs = []
+    for r in range(n_rep):
+        t = 0
+        while t < n_snap:
+            if not valid[r, t]:
+                t += 1
+                continue
+            s = t
+            while t + 1 < n_snap and valid[r, t + 1] and keys[r, t + 1] == keys[r, s]:
+                t += 1
+            runs.append((r * n_snap + s, t - s + 1, int(keys[r, s])))
+            t += 1
+    count: dict[int, int] = {}
+    for _, _, k in runs:
+        count[k] = count.get(k, 0) + 1
+    return [x for x in runs if count[x[2]] >= 2]
+
+
+def test_runs_of_equal_keys_that_can_match_are_found_as_a_plain_loop_finds_them():
+    """The memory-lean search (a sorted copy of the keys and a mask, no index arrays over
+    every (replica, snapshot)) gives exactly the runs a plain loop gives, in the order the
+    matching expects: by key, then by position. Keys drawn from small alphabets so that
+    runs, repeats across replicas, replica edges and unreadable entries all occur."""
+    from massarc.validators.checks.independence.repeats import _segments, _shared
+
+    rng = np.random.default_rng(20261204)
+    for _ in range(500):
+        n_rep, n_snap = int(rng.integers(1, 5)), int(rng.integers(1, 30))
+        keys = rng.integers(0, int(rng.integers(1, 40)), size=(n_rep, n_snap)).astype(np.uint64)
+        valid = rng.random((n_rep, n_snap)) > rng.random() * 0.3
+        first, length, key = _segments(keys, valid)
+        sel = _shared(key)
+        got = list(zip(first[sel].tolist(), length[sel].tolist(), key[sel].tolist(), strict=True))
+        want = sorted(_segments_by_hand(keys, valid), key=lambda x: (x[2], x[0]))
+        assert got == want
+
+
+def test_the_measured_pile_against_a_wall_does_not_fail():
+    """The honest run of the drift/independence calibration that failed (seed 2000006:
+    driven ZRP, u(k) = 1 + 4/k, 80 units on 200 sites between walls, from a random start,
+    100 snapshots 1000 hop times apart, 4 replicas): its coarse profile changes once, the
+    same way in every replica, and the pair test saw rounding as a correlation (z = 98).
+    It fails on the code before the fix (measured); the pair-test side of the fix is in
+    tests/test_replica_tests.py."""
+    meta = make_meta(
+        "zrp", sites=(200,), b=4.0, boundary="reflecting", drift="asymmetric",
+        right_probability=0.8,
+    )  # fmt: skip
+    times = np.arange(100) * 1000.0
+    x = np.asarray(simulate(meta, times, replicas=4, seed=2000006, mass=80, initial="random"))
+    result = check(store(meta, x, times))
+    assert result.status != "fail", result.message

@@ -341,7 +341,9 @@ def compute_window(stats: Any, ctx: CheckContext, settings: WindowSettings) -> W
             ess_bulk(w), ess_tail(w), rhat_rank(w), drift.z, drift.p, drift.reliable,
             full.z, full.reliable,
         )  # fmt: skip
-    total = np.asarray(stats.total, dtype=np.int64)[keep]
+        y = w = None  # free the float copy before the next one is made
+    total = np.asarray(stats.total, dtype=np.int64)
+    total = total if keep.all() else total[keep]
     model = _model_evidence(meta, total, series["maximum"], times, latest, settings)
     common["window_time"] = float(span)
     return _judge(obs, start, float(times[start]), n_win, settings, common, model)

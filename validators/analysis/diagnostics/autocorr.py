@@ -26,6 +26,7 @@ divided by 2.
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from dataclasses import dataclass
 
 import numpy as np
@@ -34,6 +35,7 @@ __all__ = [
     "AutocorrTime",
     "autocorrelation",
     "autocovariance",
+    "chains_autocorr_time",
     "integrated_autocorr_time",
     "sokal_window",
     "statistical_inefficiency",
@@ -98,10 +100,10 @@ def autocorrelation(x: np.ndarray, axis: int = -1) -> np.ndarray:
     >>> autocorrelation(np.array([1.0, -1.0, 1.0, -1.0]))[:2].tolist()
     [1.0, -0.75]
     """
-    acov = autocovariance(x, axis=axis)
+    acov = autocovariance(x, axis=axis)  # a fresh array: normalised in place
     c0 = np.take(acov, [0], axis=axis)
     with np.errstate(invalid="ignore", divide="ignore"):
-        return acov / c0
+        return np.divide(acov, c0, out=acov)
 
 
 def sokal_window(tau_partial: np.ndarray, c: float = SOKAL_C) -> int:
@@ -174,7 +176,41 @@ def integrated_autocorr_time(x: np.ndarray, c: float = SOKAL_C) -> AutocorrTime:
     rho = autocorrelation(a, axis=-1)
     if not np.all(np.isfinite(rho[:, 0])):  # a constant chain: no autocorrelation to measure
         return AutocorrTime(float("nan"), 0, n, chains, False)
-    mean_rho = rho.mean(axis=0)
+    return _sokal(rho.mean(axis=0), n, chains, c)
+
+
+def chains_autocorr_time(chains: Iterable[np.ndarray], c: float = SOKAL_C) -> AutocorrTime:
+    """:func:`integrated_autocorr_time` of chains handed over one at a time (1-D series of
+    one length, made float64), holding the transforms of one chain rather than of all
+    (long runs: a chain per replica, each of every snapshot). The numbers are the same
+    to rounding: each chain is transformed alone, where the array form transforms short
+    chains together (the FFT library's batched path may round differently)."""
+    total: np.ndarray | None = None
+    count, n, usable = 0, 0, True
+    for chain in chains:
+        a = np.asarray(chain, dtype=np.float64)
+        if a.ndim != 1 or (count and a.size != n):
+            raise ValueError(f"expected chains of {n or a.size} draws; got shape {a.shape}")
+        count, n = count + 1, a.size
+        if not usable:
+            continue
+        if n < 2 or not np.all(np.isfinite(a)):
+            usable = False
+            continue
+        rho = autocorrelation(a)
+        if not np.isfinite(rho[0]):  # a constant chain: no autocorrelation to measure
+            usable = False
+        elif total is None:
+            total = rho
+        else:
+            total += rho  # chain by chain, as the mean over chains adds them
+    if not usable or total is None:
+        return AutocorrTime(float("nan"), 0, n, count, False)
+    return _sokal(np.divide(total, count, out=total), n, count, c)
+
+
+def _sokal(mean_rho: np.ndarray, n: int, chains: int, c: float) -> AutocorrTime:
+    """Sokal's window on the chain-mean autocorrelation ``mean_rho``."""
     partial = np.cumsum(mean_rho) - 0.5  # tau_int(M) = 1/2 + sum_{t=1}^{M} rho(t)
     m = sokal_window(partial, c)
     tau = float(partial[m])

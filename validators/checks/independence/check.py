@@ -214,24 +214,32 @@ def _excluded_before(ctx: CheckContext, keys: np.ndarray, valid: np.ndarray, gap
 def _repeats(ctx: CheckContext, fp: FingerprintStats, snap: Any, hist: Any, alpha: float) -> dict:
     n_rep, n_snap = fp.sparse.shape
     volume = int(np.prod(fp.sites))
-    valid = fp.valid & snap.valid
-    log_q = collision_bounds(hist, snap, volume)
+    # Long runs: each step below holds a few (replica, snapshot) arrays of its own, so
+    # the steps run one after the other and keep only what later steps read (the gap,
+    # the relations): the keys are made again for the power rather than kept.
     gap = decorrelation_gap(snap)
+    valid = fp.valid & snap.valid
     pairs = n_rep * (n_rep - 1) // 2
     found: list[Relation] = []
     unverified: list[Relation] = []
     recurring = 0
     excluded = 0
-    power = 0.0
+    candidates = {}
     for kind in ("exact", "roll"):
         keys = snapshot_keys(fp, snap, kind)
         if kind == "exact":
             excluded = _excluded_before(ctx, keys, valid, gap)
-        rels, rec = find_relations(fp, keys, valid, kind)
+        candidates[kind], rec = find_relations(fp, keys, valid, kind)
         recurring += rec
+        del keys
+    log_q = collision_bounds(hist, snap, volume)
+    power = 0.0
+    for kind, rels in candidates.items():
         hypotheses = 2.0 * pairs * (2 * n_snap - 1) * (volume if kind == "roll" else 1)
         if kind == "exact":
+            keys = snapshot_keys(fp, snap, kind)
             power = copy_power(keys, valid, log_q, fp.sampled, gap, hypotheses, excluded)
+            del keys
         for rel in rels:
             verify(rel, fp)
             judge_relation(rel, log_q, fp.sampled, valid, gap, hypotheses, excluded)

@@ -149,18 +149,29 @@ class FingerprintStatistic(Statistic):
         shape2, picked = (n_rep, n_snap), (n_rep, int(np.count_nonzero(self.sampled)))
         self._out = {k: np.zeros(shape2, np.uint64) for k in ("sparse", "anchored")}
         self._out.update({k: np.zeros(picked, np.uint64) for k in ("full", "full_anchored")})
-        # a flat site index fits 32 bits on any lattice below 2^31 sites
-        self._anchor = np.full(shape2, -1, np.int32 if volume < 2**31 else np.int64)
-        self._valid = np.zeros(shape2, bool)
+        # the anchors and the readable snapshots: the ``snapshots`` statistic's ``argmax``
+        # and ``valid`` when it runs in the same pass (:meth:`prepare`), else kept here
+        self._anchor = self._valid = np.zeros((0, 0))
+        self._shape = shape2
         self.moments = SnapshotStatistic(run)  # gives the anchors; replaced by a peer's
+        self._own = True
         self.backend = backend_for(run)
 
     def prepare(self, peers: list[Statistic]) -> None:
-        """Take the anchors from the ``snapshots`` statistic's reduction when it runs too."""
+        """Take the anchors from the ``snapshots`` statistic when it runs too: its reduction
+        of every chunk, and at the end its arrays of positions and readable snapshots
+        (long runs keep one copy of each, not two)."""
         for peer in peers:
             if isinstance(peer, SnapshotStatistic):
-                self.moments = peer
+                self.moments, self._own = peer, False
                 return
+
+    def _own_arrays(self) -> None:
+        if self._anchor.shape != self._shape:
+            # a flat site index fits 32 bits on any lattice below 2^31 sites
+            site = np.int32 if math.prod(self.sites or (0,)) < 2**31 else np.int64
+            self._anchor = np.full(self._shape, -1, site)
+            self._valid = np.zeros(self._shape, bool)
 
     def chunk(self, chunk: Chunk) -> Any:
         mass = np.asarray(chunk.mass)
@@ -197,19 +208,27 @@ class FingerprintStatistic(Statistic):
         cols = (ref.replica, self.slot[ref.start : ref.stop][pick])
         self._out["full"][cols] = full[pick]
         self._out["full_anchored"][cols] = full_anchored[pick]
-        self._anchor[sl] = anchor
-        self._valid[sl] = True
+        if self._own:
+            self._own_arrays()
+            self._anchor[sl] = anchor
+            self._valid[sl] = True
 
     def finish(self, faults: list[ChunkFault]) -> FingerprintStats:
         o = self._out
+        if self._own:
+            self._own_arrays()
+            anchor, valid = self._anchor, self._valid
+        else:  # the peer's arrays (no copies), filled chunk by chunk in the same pass
+            moments = self.moments.finish(faults)
+            anchor, valid = moments.argmax, moments.valid
         return FingerprintStats(
             o["sparse"],
             o["anchored"],
-            self._anchor,
+            anchor,
             o["full"],
             o["full_anchored"],
             self.sampled,
-            self._valid,
+            valid,
             self.sites,
             self.slot,
         )

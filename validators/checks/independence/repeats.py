@@ -42,7 +42,7 @@ from typing import Any
 
 import numpy as np
 
-from ...analysis.diagnostics.autocorr import integrated_autocorr_time
+from ...analysis.diagnostics.autocorr import chains_autocorr_time
 from .fingerprints import FingerprintStats, mix64
 
 __all__ = [
@@ -88,12 +88,15 @@ def snapshot_keys(fp: FingerprintStats, snap: Any, kind: str) -> np.ndarray:
     ``kind`` is ``"exact"`` (the sparse hash) or ``"roll"`` (the anchored hash).
     """
     key = (fp.sparse if kind == "exact" else fp.anchored).copy()
-    if snap is not None:
+    if snap is None:
+        return key
+    for r in range(key.shape[0]):  # a replica at a time: temporaries of one row
+        row = key[r]
         for arr in (snap.total, snap.maximum, snap.minimum, snap.occupied):
-            key ^= np.asarray(arr, dtype=np.int64).view(np.uint64)
-            mix64(key, inplace=True)
-        key ^= np.ascontiguousarray(snap.sum_sq, dtype=np.float64).view(np.uint64)
-        mix64(key, inplace=True)
+            row ^= np.asarray(arr[r], dtype=np.int64).view(np.uint64)
+            mix64(row, inplace=True)
+        row ^= np.ascontiguousarray(snap.sum_sq[r], dtype=np.float64).view(np.uint64)
+        mix64(row, inplace=True)
     return key
 
 
@@ -107,12 +110,13 @@ def window_keys(keys: np.ndarray, valid: np.ndarray, width: int) -> tuple[np.nda
     if n < width:
         return out, ok
     span = n - width + 1
-    acc, good = out[:, :span], ok[:, :span]  # views: mixed in place
-    good[...] = True
-    for d in range(width):
-        acc ^= keys[:, d : d + span]
-        mix64(acc, inplace=True)
-        good &= valid[:, d : d + span]
+    for r in range(keys.shape[0]):  # a replica at a time: temporaries of one row
+        acc, good = out[r, :span], ok[r, :span]  # views: mixed in place
+        good[...] = True
+        for d in range(width):
+            acc ^= keys[r, d : d + span]
+            mix64(acc, inplace=True)
+            good &= valid[r, d : d + span]
     return out, ok
 
 
@@ -156,29 +160,52 @@ class Relation:
         }
 
 
+#: Entries compared per step when marking the repeated keys (bounds the temporaries).
+_BLOCK = 1 << 20
+
+
+def _repeated(keys: np.ndarray, valid: np.ndarray) -> np.ndarray:
+    """Flat (replica-major) indices, ascending, of the valid entries whose key another
+    valid entry shares. Only these can belong to a segment another segment shares a key
+    with, and on a long run they are few: the search holds one sorted copy of the keys and
+    a mask, not index arrays over every (replica, snapshot)."""
+    flat, ok = keys.reshape(-1), valid.reshape(-1)
+    ordered = flat[ok]
+    ordered.sort()
+    dup = ordered[1:][ordered[1:] == ordered[:-1]]
+    del ordered
+    if not len(dup):
+        return np.zeros(0, np.int64)
+    dup = np.unique(dup)
+    mask = np.zeros(flat.size, bool)
+    for lo in range(0, flat.size, _BLOCK):
+        part = flat[lo : lo + _BLOCK]
+        pos = np.minimum(np.searchsorted(dup, part), len(dup) - 1)
+        mask[lo : lo + _BLOCK] = dup[pos] == part
+    mask &= ok
+    return np.flatnonzero(mask)
+
+
 def _segments(keys: np.ndarray, valid: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Flat (replica-major) index of the first snapshot, length and key of the runs of
-    equal consecutive valid keys, in replica then time order (one array each)."""
-    same_prev = np.zeros(keys.shape, bool)
-    same_prev[:, 1:] = valid[:, :-1] & valid[:, 1:] & (keys[:, 1:] == keys[:, :-1])
-    same_next = np.zeros(keys.shape, bool)
-    same_next[:, :-1] = same_prev[:, 1:]
-    np.logical_not(same_prev, out=same_prev)
-    np.logical_not(same_next, out=same_next)
-    first = np.flatnonzero(same_prev & valid)
-    del same_prev
-    length = np.flatnonzero(same_next & valid)
-    del same_next
-    length -= first
-    length += 1
-    return first, length, keys.reshape(-1)[first]
+    equal consecutive valid keys, in replica then time order (one array each), leaving out
+    the runs no other run can share a key with. A run's entries all carry its key, so
+    either every entry of a run is repeated (:func:`_repeated`) or the run is a single
+    entry with a key of its own."""
+    idx = _repeated(keys, valid)
+    flat = keys.reshape(-1)
+    width = keys.shape[1]
+    cont = np.zeros(len(idx), bool)  # the entry continues the run of the one before it
+    cont[1:] = (idx[1:] == idx[:-1] + 1) & (idx[1:] % width != 0)
+    cont[1:] &= flat[idx[1:]] == flat[idx[:-1]]
+    first = idx[~cont]
+    length = np.diff(np.append(np.flatnonzero(~cont), len(idx)))
+    return first, length, flat[first]
 
 
 def _shared(key: np.ndarray) -> np.ndarray:
     """Indices of the entries of ``key`` whose value another entry shares, ordered by key
-    and, within a key, by index (the order of a stable sort). Only these can match, and
-    on a long run they are few: the (replica, snapshot) arrays are freed before the
-    matches are enumerated."""
+    and, within a key, by index (the order of a stable sort). Only these can match."""
     order = np.argsort(key, kind="stable")
     ordered = key[order]
     same = ordered[1:] == ordered[:-1]
@@ -291,7 +318,8 @@ def collision_bounds(hist: Any, snap: Any, volume: int) -> np.ndarray:
     # in place: one (replica, snapshot) array at a time
     var = snap.total / volume
     np.square(var, out=var)
-    np.subtract(snap.sum_sq / volume, var, out=var)
+    for r in range(var.shape[0]):  # a replica at a time: no second full-size temporary
+        np.subtract(snap.sum_sq[r] / volume, var[r], out=var[r])
     np.clip(var, 0.0, None, out=var)
     var *= 2.0 * math.pi * volume
     np.maximum(var, 1.0, out=var)
@@ -309,11 +337,23 @@ def decorrelation_gap(snap: Any) -> int:
     n = snap.total.shape[1]
     gaps = [1.0]
     for arr in (snap.maximum, snap.sum_sq, snap.occupied):
-        a = np.asarray(arr, dtype=np.float64)
-        if a.shape[0] >= 3:
-            a = a - a.mean(axis=0, keepdims=True)
-        if n >= 8 and np.ptp(a) > 0:
-            g = integrated_autocorr_time(a).g
+        if n < 8:
+            break
+        # chain by chain, centred as it is made float: long runs hold one float64 chain
+        # and its transforms, not a copy of the (replica, snapshot) array and its spectra
+        mean = np.mean(arr, axis=0, dtype=np.float64) if arr.shape[0] >= 3 else None
+
+        def chain(r: int, arr: np.ndarray = arr, mean: np.ndarray | None = mean) -> np.ndarray:
+            a = np.asarray(arr[r], dtype=np.float64)
+            return a - mean if mean is not None else a
+
+        rows = range(arr.shape[0])
+        lo, hi = math.inf, -math.inf
+        for r in rows:
+            a = chain(r)
+            lo, hi = min(lo, float(a.min())), max(hi, float(a.max()))
+        if hi - lo > 0:
+            g = chains_autocorr_time(chain(r) for r in rows).g
             if math.isfinite(g):
                 gaps.append(g)
     return int(min(max(1, math.ceil(max(gaps))), max(1, n // 4)))
