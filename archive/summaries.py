@@ -18,7 +18,6 @@ Writing never touches ``mass``, ``time`` or the run's header.
 
 from __future__ import annotations
 
-import asyncio
 import math
 import os
 import shutil
@@ -51,11 +50,15 @@ _NEW, _OLD = f"{SUMMARIES}.new-", f"{SUMMARIES}.old-"
 
 @dataclass(frozen=True)
 class StoredArray:
-    """One array to store: its dimension names, data and attributes (JSON values)."""
+    """One array to store: its dimension names, data and attributes (JSON values), and
+    the stored dtype when it is wider than the data's (``None``: the data's). A wider
+    dtype is cast a block of chunks at a time while writing, so that long runs' (replica,
+    snapshot) observables are not held twice, once narrow and once 64-bit."""
 
     dims: tuple[str, ...]
     data: np.ndarray
     attrs: Mapping[str, Any]
+    dtype: np.dtype | None = None
 
     def __post_init__(self) -> None:
         if len(self.dims) != np.ndim(self.data):
@@ -98,20 +101,32 @@ def _fill(group: zarr.Group, arrays: Mapping[str, StoredArray], attrs: Mapping[s
 
     async def one(name: str, item: StoredArray) -> None:
         data = np.ascontiguousarray(item.data)
+        dtype = np.dtype(item.dtype) if item.dtype is not None else data.dtype
         arr = await group._async_group.create_array(
             name,
             shape=data.shape,
-            dtype=data.dtype,
+            dtype=dtype,
             dimension_names=item.dims,
             attributes=plain(dict(item.attrs)),
-            fill_value=np.nan if data.dtype.kind == "f" else 0,
+            fill_value=np.nan if dtype.kind == "f" else 0,
             chunk_key_encoding={"name": "default", "separator": "."},  # no nested folders
         )
-        if data.size:
-            await arr.setitem(Ellipsis, data)
+        if not data.size:
+            return
+        if dtype == data.dtype or data.ndim == 0:
+            await arr.setitem(Ellipsis, data.astype(dtype, copy=False))
+            return
+        # cast whole chunks along the last axis, a block of about 2**20 values at a time
+        step = arr.chunks[-1] * max(1, (1 << 20) // max(1, math.prod(arr.chunks)))
+        for lo in range(0, data.shape[-1], step):
+            block = (Ellipsis, slice(lo, lo + step))
+            await arr.setitem(block, data[block].astype(dtype))
 
     async def every() -> None:
-        await asyncio.gather(*(one(name, item) for name, item in arrays.items()))
+        # one array after the other: each writes its chunks concurrently, and long runs'
+        # (replica, snapshot) arrays would otherwise all hold their encoded chunks at once
+        for name, item in arrays.items():
+            await one(name, item)
 
     sync(every())
     group.update_attributes({ATTRIBUTE_KEY: plain({"format": SUMMARIES_KIND, **attrs})})

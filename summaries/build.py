@@ -80,19 +80,22 @@ def build_summaries(
     common = {"massarc_version": __version__, "options": opts.as_dict(), "window": window}
     arrays: dict[str, StoredArray] = {}
 
-    def put(name: str, data: np.ndarray, long_name: str, **extra: Any) -> None:
+    def put(name: str, data: np.ndarray, long_name: str, dtype: Any = None, **extra: Any) -> None:
         dims, units = SUMMARY_ARRAYS[name]
         units = meta.run.time_units if units == "time" else units
         attrs = {"long_name": long_name, "units": units, **common, **extra}
-        arrays[name] = StoredArray(dims, np.asarray(data), attrs)
+        stored = None if dtype is None else np.dtype(dtype)
+        arrays[name] = StoredArray(dims, np.asarray(data), attrs, stored)
 
     threshold = {"above": col.above, "rule": col.rule}
-    as64 = np.int64  # the stored summaries keep 64-bit integers (the statistic may be narrower)
-    put("largest_mass", snap.maximum.astype(as64), "largest site mass")
+    # the stored summaries keep 64-bit integers; the statistic's narrower arrays are cast
+    # while they are written (StoredArray.dtype), not copied here
+    as64 = np.int64
+    put("largest_mass", snap.maximum, "largest site mass", as64)
     first_site = "flat (C-order) index of the first site holding it"
-    put("largest_site", snap.argmax.astype(as64), first_site)
+    put("largest_site", snap.argmax, first_site, as64)
     put("second_moment", snap.sum_sq, "sum over sites of m^2")
-    put("occupied", snap.occupied.astype(as64), "sites with m > 0")
+    put("occupied", snap.occupied, "sites with m > 0", as64)
     put("condensates", cond.count, "sites above the condensate threshold", threshold=threshold)
     put("condensate_mass", cond.mass, "mass on sites above the threshold", threshold=threshold)
     with np.errstate(invalid="ignore", divide="ignore"):

@@ -96,12 +96,17 @@ def condensate_report(
     """The condensate in the window against theory (arrays over (replica, snapshot) of
     the window: largest mass, mass held by condensates, total mass)."""
     out = expected_condensate(meta)
-    big = np.asarray(largest, dtype=np.float64).reshape(-1)
+    # one ratio at a time, divided in place: long runs hold two float copies, not five
     tot = np.asarray(total, dtype=np.float64).reshape(-1)
+    frac = np.array(held, dtype=np.float64).reshape(-1)
     with np.errstate(invalid="ignore", divide="ignore"):
-        frac = np.asarray(held, dtype=np.float64).reshape(-1) / tot
-        top = big / tot
+        np.divide(frac, tot, out=frac)
+    held_fraction = float(np.nanmean(frac)) if np.isfinite(frac).any() else None
+    del frac
+    big = np.array(largest, dtype=np.float64).reshape(-1)
     out["largest_mass"] = _spread(big)
-    out["condensate_fraction"] = float(np.nanmean(frac)) if np.isfinite(frac).any() else None
+    out["condensate_fraction"] = held_fraction
+    with np.errstate(invalid="ignore", divide="ignore"):
+        top = np.divide(big, tot, out=big)
     out["largest_fraction"] = float(np.nanmean(top)) if np.isfinite(top).any() else None
     return out
