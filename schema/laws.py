@@ -267,22 +267,43 @@ def _log_weights(model: ZRPModel, kmax: int) -> np.ndarray:
 
 def _tilt(logf: np.ndarray, density: float) -> float:
     """theta such that the law proportional to f(m) e^(theta m), m = 0..K, has mean ``density``
-    (0 < density < K)."""
-    from scipy.optimize import brentq  # scipy is imported when a law is first needed
-    from scipy.special import logsumexp
+    (0 < density < K).
 
+    The mean grows with theta at the rate of the variance, so Newton's steps on it
+    converge fast; a step that would leave the bracket known to hold the root is replaced
+    by bisection. Written out rather than calling ``scipy.optimize.brentq`` because
+    importing scipy.optimize costs about a tenth of a second of every audit of a ZRP run
+    (the tests compare the two)."""
     m = np.arange(len(logf), dtype=np.float64)
 
-    def excess(theta: float) -> float:
+    def excess(theta: float) -> tuple[float, float]:
         a = logf + theta * m
-        return float(np.exp(a - logsumexp(a)) @ m) - density
+        w = np.exp(a - a.max())
+        w /= w.sum()
+        mean = float(w @ m)
+        return mean - density, float(w @ (m - mean) ** 2)
 
     lo, hi = -1.0, 1.0
-    while excess(lo) > 0:
+    while excess(lo)[0] > 0:
         lo *= 2.0
-    while excess(hi) < 0:
+    while excess(hi)[0] < 0:
         hi *= 2.0
-    return float(brentq(excess, lo, hi, xtol=1e-14, rtol=1e-14))
+    theta = min(max(0.0, lo), hi)
+    for _ in range(200):
+        f, var = excess(theta)
+        if f == 0.0:
+            break
+        if f > 0:
+            hi = theta
+        else:
+            lo = theta
+        step = theta - f / var if var > 0 else math.nan
+        new = step if lo < step < hi else 0.5 * (lo + hi)
+        done = abs(new - theta) <= 1e-14 * (1.0 + abs(theta))
+        theta = new
+        if done:
+            break
+    return float(theta)
 
 
 def _scaled_convolve(a: np.ndarray, b: np.ndarray, n: int) -> tuple[np.ndarray, float]:

@@ -180,3 +180,29 @@ def test_dynamic_exponent_and_relaxation_time() -> None:
     assert relaxation_time(asym) == pytest.approx(50.0**2)
     assert relaxation_time(cmam) == pytest.approx(30.0**2 / 2.0)
     assert relaxation_time(make_meta("custom")) is None
+
+
+@pytest.mark.parametrize("b", [0.5, 3.0, 4.0])
+@pytest.mark.parametrize("density", [1e-3, 0.05, 0.4, 2.0, 9.5])
+def test_tilt_matches_scipy_root_finding(b: float, density: float) -> None:
+    """The tilt solves mean(theta) = density as scipy.optimize.brentq does (outside truth:
+    scipy's root finder on the same equation, with logsumexp for the normalisation)."""
+    from scipy.optimize import brentq
+    from scipy.special import logsumexp
+
+    from massarc.schema.laws import _log_weights, _tilt
+
+    logf = _log_weights(ZRPModel(family="zrp", b=b), 10)
+    m = np.arange(len(logf), dtype=np.float64)
+
+    def excess(theta: float) -> float:
+        a = logf + theta * m
+        return float(np.exp(a - logsumexp(a)) @ m) - density
+
+    lo, hi = -1.0, 1.0
+    while excess(lo) > 0:
+        lo *= 2.0
+    while excess(hi) < 0:
+        hi *= 2.0
+    want = brentq(excess, lo, hi, xtol=1e-14, rtol=1e-14)
+    assert _tilt(logf, density) == pytest.approx(want, rel=1e-10, abs=1e-12)
