@@ -26,6 +26,7 @@ divided by 2.
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Iterable
 from dataclasses import dataclass
 
@@ -49,6 +50,7 @@ SOKAL_C = 5.0
 _BLOCK_VALUES = 1 << 18
 
 
+@functools.lru_cache(maxsize=256)  # the stationary window asks for a few lengths many times
 def _fft_length(n: int) -> int:
     """The least length >= 2n whose prime factors are 2, 3 and 5 (zero padding to 2n avoids
     circular wrap; such lengths transform fast, and a power of two could double the work).
@@ -77,7 +79,13 @@ def autocovariance(x: np.ndarray, axis: int = -1) -> np.ndarray:
     C(t) = (1/n) sum_{s=0}^{n-t-1} (x_s - xbar)(x_{s+t} - xbar); the 1/n normalisation
     keeps the estimated sequence positive definite.
     """
-    a = np.moveaxis(np.asarray(x, dtype=np.float64), axis, -1)
+    a = np.asarray(x, dtype=np.float64)
+    if a.ndim == 1 and a.size:  # one series (the diagnostics ask for thousands): no reshaping
+        n = a.size
+        m = _fft_length(n)
+        f = np.fft.rfft(a - a.mean(), n=m)
+        return np.fft.irfft(f * np.conj(f), n=m)[:n] / n
+    a = np.moveaxis(a, axis, -1)
     n = a.shape[-1]
     if n == 0:
         raise ValueError("expected a series with at least one value; got an empty one")
