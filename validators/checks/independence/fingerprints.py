@@ -101,7 +101,8 @@ class FingerprintStats:
     ``full`` and ``full_anchored`` are ``(replica, sampled snapshot)``: snapshot t is
     column ``slot[t]`` where ``sampled[t]`` (``slot`` is -1 elsewhere), so that the hashes
     of a long run cost a sixty-fourth of a (replica, snapshot) array, not two.
-    ``anchor`` is the flat (C-order) index of the first largest mass."""
+    ``anchor`` is the flat (C-order) index of the first largest mass (meaningless where
+    ``valid`` is False)."""
 
     sparse: np.ndarray
     anchored: np.ndarray
