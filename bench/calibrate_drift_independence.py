@@ -272,6 +272,8 @@ def _runs_per_spacing(summary: dict[str, Any]) -> str:
 
 
 def write_doc(summary: dict[str, Any]) -> None:
+    # by spacing (cells kept from an earlier call come first in the saved results)
+    summary = dict(sorted(summary.items(), key=lambda kv: float(kv[0].rsplit("every ", 1)[1])))
     lines = [
         "# Calibration of the `drift` and `independence` checks",
         "",
