@@ -152,7 +152,8 @@ class FingerprintStatistic(Statistic):
         self._out.update({k: np.zeros(picked, np.uint64) for k in ("full", "full_anchored")})
         # the anchors and the readable snapshots: the ``snapshots`` statistic's ``argmax``
         # and ``valid`` when it runs in the same pass (:meth:`prepare`), else kept here
-        self._anchor = self._valid = np.zeros((0, 0))
+        self._anchor: np.ndarray | None = None
+        self._valid: np.ndarray | None = None
         self._shape = shape2
         self.moments = SnapshotStatistic(run)  # gives the anchors; replaced by a peer's
         self._own = True
@@ -167,12 +168,13 @@ class FingerprintStatistic(Statistic):
                 self.moments, self._own = peer, False
                 return
 
-    def _own_arrays(self) -> None:
-        if self._anchor.shape != self._shape:
+    def _own_arrays(self) -> tuple[np.ndarray, np.ndarray]:
+        if self._anchor is None or self._valid is None:
             # a flat site index fits 32 bits on any lattice below 2^31 sites
             site = np.int32 if math.prod(self.sites or (0,)) < 2**31 else np.int64
             self._anchor = np.full(self._shape, -1, site)
             self._valid = np.zeros(self._shape, bool)
+        return self._anchor, self._valid
 
     def chunk(self, chunk: Chunk) -> Any:
         mass = np.asarray(chunk.mass)
@@ -210,15 +212,14 @@ class FingerprintStatistic(Statistic):
         self._out["full"][cols] = full[pick]
         self._out["full_anchored"][cols] = full_anchored[pick]
         if self._own:
-            self._own_arrays()
-            self._anchor[sl] = anchor
-            self._valid[sl] = True
+            own_anchor, own_valid = self._own_arrays()
+            own_anchor[sl] = anchor
+            own_valid[sl] = True
 
     def finish(self, faults: list[ChunkFault]) -> FingerprintStats:
         o = self._out
         if self._own:
-            self._own_arrays()
-            anchor, valid = self._anchor, self._valid
+            anchor, valid = self._own_arrays()
         else:  # the peer's arrays (no copies), filled chunk by chunk in the same pass
             moments = self.moments.finish(faults)
             anchor, valid = moments.argmax, moments.valid

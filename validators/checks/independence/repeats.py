@@ -37,6 +37,7 @@ Chance matches
 from __future__ import annotations
 
 import math
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -328,32 +329,28 @@ def collision_bounds(hist: Any, snap: Any, volume: int) -> np.ndarray:
     return np.minimum(canon, 0.0, out=canon)
 
 
+def _centred(arr: np.ndarray) -> Iterator[np.ndarray]:
+    """Each replica's series as float64, less the replica mean at each snapshot when there
+    are three replicas or more, one at a time: long runs hold one float64 chain and its
+    transforms, not a copy of the (replica, snapshot) array and its spectra."""
+    mean = np.mean(arr, axis=0, dtype=np.float64) if arr.shape[0] >= 3 else None
+    for row in arr:
+        a = np.asarray(row, dtype=np.float64)
+        yield a - mean if mean is not None else a
+
+
 def decorrelation_gap(snap: Any) -> int:
     """Snapshots between nearly independent coincidences: the largest statistical
     inefficiency of the largest mass, the sum of squares and the occupied sites (Sokal's
     window, chains pooled; with three replicas or more, of their deviations from the
     replica mean, so that a relaxation shared by every replica does not pass for memory),
-    at least 1 and at most a quarter of the run."""
+    at least 1 and at most a quarter of the run. A constant chain has no finite
+    inefficiency and adds nothing."""
     n = snap.total.shape[1]
     gaps = [1.0]
-    for arr in (snap.maximum, snap.sum_sq, snap.occupied):
-        if n < 8:
-            break
-        # chain by chain, centred as it is made float: long runs hold one float64 chain
-        # and its transforms, not a copy of the (replica, snapshot) array and its spectra
-        mean = np.mean(arr, axis=0, dtype=np.float64) if arr.shape[0] >= 3 else None
-
-        def chain(r: int, arr: np.ndarray = arr, mean: np.ndarray | None = mean) -> np.ndarray:
-            a = np.asarray(arr[r], dtype=np.float64)
-            return a - mean if mean is not None else a
-
-        rows = range(arr.shape[0])
-        lo, hi = math.inf, -math.inf
-        for r in rows:
-            a = chain(r)
-            lo, hi = min(lo, float(a.min())), max(hi, float(a.max()))
-        if hi - lo > 0:
-            g = chains_autocorr_time(chain(r) for r in rows).g
+    if n >= 8:
+        for arr in (snap.maximum, snap.sum_sq, snap.occupied):
+            g = chains_autocorr_time(_centred(arr)).g
             if math.isfinite(g):
                 gaps.append(g)
     return int(min(max(1, math.ceil(max(gaps))), max(1, n // 4)))
